@@ -455,12 +455,10 @@ class RockPhysicsSection(_Ranged):
     critical_porosity: float = Field(0.40, gt=0.2, lt=0.5)
     shale_critical_porosity: float = Field(0.65, gt=0.3, lt=0.9)
     coordination_number: Dist
+    shale_coordination_number: float = Field(9.0, ge=4, le=14)
     cement_scheme: Literal[1, 2] = 2
     constant_cement_porosity: float = Field(
         0.36, gt=0.1, lt=0.5, description="Porosity of the cemented end member (constant cement)"
-    )
-    constant_cement_volume: float = Field(
-        0.02, ge=0.0, le=0.1, description="Contact cement of the constant-cement model, fraction"
     )
     fluids: FluidSection
     seismic: SeismicSection
