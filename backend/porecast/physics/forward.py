@@ -255,6 +255,35 @@ def simulate(
     -------
     ForwardResult
     """
+    step = _Stepper(progress, _STAGES)
+    try:
+        return _simulate(scenario, realisations, node_values, overrides, step)
+    except ValueError as exc:
+        raise ValueError(
+            f"simulation stopped while computing {step.current}: {exc}. Check the scenario "
+            "inputs that feed this stage (for fluids: temperature and pressure at the hottest, "
+            "deepest node must stay inside the Batzle-Wang ranges)"
+        ) from exc
+
+
+_STAGES = (
+    "burial history",
+    "compaction and cementation",
+    "minerals",
+    "dry rock",
+    "fluids",
+    "saturated rock",
+    "attributes",
+)
+
+
+def _simulate(
+    scenario: Scenario,
+    realisations: int | None,
+    node_values: FloatArray | None,
+    overrides: dict[str, float] | None,
+    step: _Stepper,
+) -> ForwardResult:
     n = int(realisations or scenario.realisations)
     if n < 2:
         raise ValueError(f"realisations must be at least 2 (got {n})")
@@ -272,8 +301,6 @@ def simulate(
     shape = (n_nodes, n_fac, n)
     size = n_nodes * n_fac * n
     draw = _Draws(scenario.seed, size, overrides)
-    stages = 7
-    step = _Stepper(progress, stages)
 
     # --- burial history: node value + per-realisation perturbation
     covs = scenario.burial.covariates
@@ -494,13 +521,19 @@ def simulate(
 
 
 class _Stepper:
-    def __init__(self, progress: Progress | None, total: int):
-        self.progress, self.total, self.done = progress, total, 0
+    """Reports finished stages and remembers the one in progress (for error messages)."""
+
+    def __init__(self, progress: Progress | None, stages: tuple[str, ...]):
+        self.progress, self.stages, self.done = progress, stages, 0
+
+    @property
+    def current(self) -> str:
+        return self.stages[min(self.done, len(self.stages) - 1)]
 
     def __call__(self, stage: str) -> None:
         self.done += 1
         if self.progress is not None:
-            self.progress(self.done, self.total, stage)
+            self.progress(self.done, len(self.stages), stage)
 
 
 def _sand_draws(scenario: Scenario, draw: _Draws, shape: tuple[int, int, int]) -> dict[str, Any]:
