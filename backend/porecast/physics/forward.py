@@ -338,45 +338,50 @@ def _simulate(
         burial.STANDARD_GRAVITY * 1e-3
     )  # MPa per m of hydrostatic effective stress
 
-    def mech(phi0: FloatArray, c_per_km: FloatArray) -> FloatArray:
+    def mech(h: burial.BurialHistory, phi0: FloatArray, c_per_km: FloatArray) -> FloatArray:
         if mode == "depth":
             return compaction.mechanical_porosity(
-                hist, porosity_surface=phi0, mode="depth", compaction_coefficient_per_km=c_per_km
+                h, porosity_surface=phi0, mode="depth", compaction_coefficient_per_km=c_per_km
             )
         # Stress form with the coefficient that matches the depth form under a
         # hydrostatic pore pressure: beta = c / (d sigma'/dz).
         return compaction.mechanical_porosity(
-            hist,
+            h,
             porosity_surface=phi0,
             mode="stress",
             compaction_coefficient_per_mpa=c_per_km / (ob_gradient * 1e3),
         )
 
-    phi_path_sand = mech(sand["porosity_surface"], sand["compaction_per_km"])
-    onset_age = burial.onset_age(hist, onset_c)
+    # Sand and reservoir-shale chains run only on their own realisations; the
+    # draws above cover every realisation so the random streams stay aligned.
+    in_sand = ~is_shale
+    hs = _rows(hist, in_sand)
+    sand = {k: v[in_sand] for k, v in sand.items()}
+    phi_path_sand = mech(hs, sand["porosity_surface"], sand["compaction_per_km"])
+    onset_age = burial.onset_age(hs, onset_c)
     cemented = np.isfinite(onset_age)
-    phi_onset = np.where(cemented, _at_age(hist.ages_ma, phi_path_sand, onset_age), np.nan)
+    phi_onset = np.where(cemented, _at_age(hs.ages_ma, phi_path_sand, onset_age), np.nan)
     phi_mech_sand = np.where(cemented, phi_onset, phi_path_sand[:, -1])
-    phi0_cement = np.where(cemented, phi_onset, phi_path_sand[:, -1])
     cement_path = diagenesis.quartz_cement(
-        hist.ages_ma,
-        hist.temperature_c,
+        hs.ages_ma,
+        hs.temperature_c,
         grain_size_mm=sand["grain_size_mm"],
-        quartz_fraction=diagenesis.bulk_quartz_fraction(sand["quartz_fraction"], phi0_cement),
+        quartz_fraction=diagenesis.bulk_quartz_fraction(sand["quartz_fraction"], phi_mech_sand),
         coating_fraction=sand["coating_fraction"],
-        porosity_onset=phi0_cement,
+        porosity_onset=phi_mech_sand,
         onset_c=onset_c,
     )
     cement_sand = np.where(cemented, cement_path[:, -1], 0.0)
     phi_sand = phi_mech_sand - cement_sand
-    phi_cap = mech(shale["porosity_surface"], shale["compaction_per_km"])[:, -1]
-    phi_res_shale = mech(res_shale["porosity_surface"], res_shale["compaction_per_km"])[:, -1]
+    phi_cap = mech(hist, shale["porosity_surface"], shale["compaction_per_km"])[:, -1]
+    hsh = _rows(hist, is_shale)
+    res_shale = {k: v[is_shale] for k, v in res_shale.items()}
+    phi_res_shale = mech(hsh, res_shale["porosity_surface"], res_shale["compaction_per_km"])[:, -1]
     step("compaction and cementation")
 
     # --- minerals (Voigt-Reuss-Hill)
-    q, f_feld, cl = sand["quartz_fraction"], None, sand["clay_fraction"]
-    f_feld = 1.0 - q - cl
-    m_sand = _mineral_mix({"quartz": q, "feldspar": f_feld, "clay": cl})
+    q, cl = sand["quartz_fraction"], sand["clay_fraction"]
+    m_sand = _mineral_mix({"quartz": q, "feldspar": 1.0 - q - cl, "clay": cl})
     m_cap = _mineral_mix({"clay": shale["clay_fraction"], "quartz": 1.0 - shale["clay_fraction"]})
     m_res_shale = _mineral_mix(
         {"clay": res_shale["clay_fraction"], "quartz": 1.0 - res_shale["clay_fraction"]}
@@ -387,7 +392,9 @@ def _simulate(
     sigma_now = hist.effective_stress_mpa[:, -1]
     rp = scenario.rockphysics
     coord = draw("rockphysics.coordination_number", rp.coordination_number)
-    kd_sand, gd_sand = _sand_dry(rp, m_sand, phi_sand, phi_mech_sand, cement_sand, coord, sigma_now)
+    kd_sand, gd_sand = _sand_dry(
+        rp, m_sand, phi_sand, phi_mech_sand, cement_sand, coord[in_sand], sigma_now[in_sand]
+    )
     # Compaction-driven shale: its Athy porosity in the friable (soft-sand) model
     # on the clay-quartz mineral, at the shale's critical porosity and the
     # present effective stress.
@@ -405,7 +412,7 @@ def _simulate(
         phi_res_shale,
         rp.shale_critical_porosity,
         rp.shale_coordination_number,
-        sigma_now,
+        sigma_now[is_shale],
     )
     step("dry rock")
 
@@ -447,12 +454,12 @@ def _simulate(
     step("fluids")
 
     # --- saturated rock: reservoir facies and cap rock
-    phi = np.where(is_shale, phi_res_shale, phi_sand)
-    k_min = np.where(is_shale, m_res_shale.k, m_sand.k)
-    g_min = np.where(is_shale, m_res_shale.g, m_sand.g)
-    rho_min = np.where(is_shale, m_res_shale.rho, m_sand.rho)
-    k_dry = np.where(is_shale, kd_rsh, kd_sand)
-    g_dry = np.where(is_shale, gd_rsh, gd_sand)
+    phi = _merge(is_shale, phi_res_shale, phi_sand)
+    k_min = _merge(is_shale, m_res_shale.k, m_sand.k)
+    g_min = _merge(is_shale, m_res_shale.g, m_sand.g)
+    rho_min = _merge(is_shale, m_res_shale.rho, m_sand.rho)
+    k_dry = _merge(is_shale, kd_rsh, kd_sand)
+    g_dry = _merge(is_shale, gd_rsh, gd_sand)
     if fl.mixing == "patchy":
         k_sat, g_sat = rockphysics.patchy_saturation(
             k_dry, g_dry, k_min, phi, np.stack([b.modulus, k_hc], axis=-1), sat
@@ -490,8 +497,8 @@ def _simulate(
         "temperature_c": t_now,
         "pore_pressure_mpa": p_now,
         "effective_stress_mpa": sigma_now,
-        "porosity_mechanical": np.where(is_shale, phi_res_shale, phi_mech_sand),
-        "cement": np.where(is_shale, 0.0, cement_sand),
+        "porosity_mechanical": _merge(is_shale, phi_res_shale, phi_mech_sand),
+        "cement": _merge(is_shale, np.zeros(int(is_shale.sum())), cement_sand),
         "porosity": phi,
         "k_mineral": k_min,
         "g_mineral": g_min,
@@ -641,6 +648,19 @@ def _sand_dry(
         np.where(has_cement, np.maximum(k_f, k_c), k_f),
         np.where(has_cement, np.maximum(g_f, g_c), g_f),
     )
+
+
+def _rows(hist: burial.BurialHistory, mask: np.ndarray) -> burial.BurialHistory:
+    """The paths of ``hist`` selected by a boolean mask over its first axis."""
+    return burial.BurialHistory(hist.ages_ma, *(a[mask] for a in hist[1:]))
+
+
+def _merge(mask: np.ndarray, where_true: FloatArray, where_false: FloatArray) -> FloatArray:
+    """Full-length array from the values of the masked and the unmasked realisations."""
+    out = np.empty(mask.shape, dtype=np.float64)
+    out[mask] = where_true
+    out[~mask] = where_false
+    return out
 
 
 def _at_age(ages: FloatArray, values: FloatArray, age: FloatArray) -> FloatArray:

@@ -1,0 +1,107 @@
+"""Forward-model throughput: vectorised chain against one realisation at a time.
+
+Prints realisations per second of the full chain (burial -> compaction ->
+cement -> rock physics -> fluids -> attributes) at N realisations on one core,
+the peak resident memory of that run, and the same chain run one realisation
+at a time with the cementation integrated by ``scipy.integrate.solve_ivp``
+instead of the closed form, as a ratio measured in the same process.
+
+Usage: ``python benchmarks/forward.py [--n 1000000] [--loop 100]``
+"""
+
+from __future__ import annotations
+
+import argparse
+import copy
+import resource
+import time
+
+import numpy as np
+from scipy.integrate import solve_ivp
+from threadpoolctl import threadpool_limits
+
+from porecast.physics import diagenesis, forward
+from porecast.physics.scenario import default_scenario, validate_scenario
+
+
+def single_node_scenario():
+    """The bundled example reduced to one covariate node (a mid-basin location)."""
+    doc = copy.deepcopy(default_scenario())
+    covs = doc["burial"]["covariates"]
+    covs["present_depth_m"]["nodes"] = [2300.0]
+    covs["net_uplift_m"]["nodes"] = [400.0]
+    covs["gradient_c_per_km"]["nodes"] = [35.0]
+    return validate_scenario(doc)
+
+
+def quartz_cement_ivp(age_ma, temperature_c, *, grain_size_mm, quartz_fraction,
+                      coating_fraction, porosity_onset, onset_c=70.0):
+    """Walderhaug cement by numerical integration, one path per row (reference route)."""
+    ages = np.asarray(age_ma, dtype=float)
+    temps = np.atleast_2d(temperature_c)
+    out = np.zeros_like(temps)
+    params = np.broadcast_arrays(grain_size_mm, quartz_fraction, coating_fraction, porosity_onset)
+    params = [np.atleast_1d(p).astype(float) for p in params]
+    t_axis = ages[0] - ages  # Myr since deposition, increasing
+    for i in range(temps.shape[0]):
+        k = diagenesis.walderhaug_rate_constant(
+            params[0][i], params[1][i], params[2][i], params[3][i]
+        )
+        phi0 = params[3][i]
+        temp = temps[i]
+
+        def rate(t, v, k=k, phi0=phi0, temp=temp):
+            tc = np.interp(t, t_axis, temp)
+            if tc < onset_c:
+                return [0.0]
+            return [k * phi0 * (1.0 - v[0] / phi0) * 10.0 ** (diagenesis.WALDERHAUG_B_PER_C * tc)]
+
+        sol = solve_ivp(rate, (0.0, t_axis[-1]), [0.0], t_eval=t_axis, rtol=1e-10,
+                        atol=1e-14, max_step=1.0)
+        out[i] = sol.y[0]
+    return out
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__)
+    parser.add_argument("--n", type=int, default=1_000_000, help="total realisations")
+    parser.add_argument("--loop", type=int, default=100,
+                        help="realisations for the one-at-a-time solve_ivp run")
+    args = parser.parse_args()
+    sc = single_node_scenario()
+    n_fac = len(sc.geology.facies)
+    per_facies = max(2, args.n // n_fac)
+    total = per_facies * n_fac
+
+    with threadpool_limits(1):
+        forward.simulate(sc, realisations=2)  # warm caches and imports
+        t0 = time.perf_counter()
+        forward.simulate(sc, realisations=per_facies)
+        vec_s = time.perf_counter() - t0
+        peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+
+        original = diagenesis.quartz_cement
+        diagenesis.quartz_cement = quartz_cement_ivp  # forward calls it through the module
+        try:
+            t0 = time.perf_counter()
+            for _ in range(max(1, args.loop // (2 * n_fac))):
+                forward.simulate(sc, realisations=2)
+            loop_s = time.perf_counter() - t0
+            loop_n = max(1, args.loop // (2 * n_fac)) * 2 * n_fac
+        finally:
+            diagenesis.quartz_cement = original
+
+    vec_rate = total / vec_s
+    loop_rate = loop_n / loop_s
+    print(f"vectorised chain : {total:>9d} realisations in {vec_s:7.2f} s "
+          f"= {vec_rate:,.0f} realisations/s (one core)")
+    print(f"peak RSS         : {peak_mb:,.0f} MB")
+    print(f"one at a time    : {loop_n:>9d} realisations in {loop_s:7.2f} s "
+          f"= {loop_rate:,.1f} realisations/s (solve_ivp cement)")
+    print(f"ratio            : {vec_rate / loop_rate:,.0f}x")
+    print(f"goal             : >= 1,000,000 realisations/s, peak < 2,000 MB "
+          f"-> {'met' if vec_rate >= 1e6 and peak_mb < 2000 else 'NOT met'}")
+
+
+if __name__ == "__main__":
+    main()
