@@ -91,14 +91,18 @@ def atomic_path(final_path: str | os.PathLike[str], *, fsync: bool = True) -> It
     """
     final = Path(final_path)
     if not final.parent.is_dir():
-        raise FileNotFoundError(f"output directory {final.parent} does not exist (for {final.name})")
+        raise FileNotFoundError(
+            f"output directory {final.parent} does not exist (for {final.name})"
+        )
     if final.is_dir():
         raise IsADirectoryError(f"output path {final} is a directory")
     tmp = _create_temp(final)
     try:
         yield tmp
         if not tmp.exists():
-            raise FileNotFoundError(f"temporary output {tmp} vanished before it could become {final}")
+            raise FileNotFoundError(
+                f"temporary output {tmp} vanished before it could become {final}"
+            )
         if fsync:
             _fsync_file(tmp)
         os.replace(tmp, final)
