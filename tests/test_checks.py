@@ -7,7 +7,9 @@ from porecast.physics._checks import as_finite, in_range
 
 
 def test_in_range_names_argument_range_and_value():
-    with pytest.raises(ValueError, match=r"grain_size_mm must be greater than 0 mm \(got -0.2 mm\)"):
+    with pytest.raises(
+        ValueError, match=r"grain_size_mm must be greater than 0 mm \(got -0.2 mm\)"
+    ):
         in_range("grain_size_mm", [0.1, -0.2], 0.0, unit="mm", low_open=True)
 
 
