@@ -1,0 +1,1 @@
+"""JSON API under /api: FastAPI routers, pydantic schemas and auth dependencies."""

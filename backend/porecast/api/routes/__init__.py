@@ -1,0 +1,1 @@
+"""One router per resource; every route is a thin call into ``porecast.services``."""
