@@ -104,20 +104,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 def _extra_commands() -> list[Callable[[argparse._SubParsersAction], None]]:
     """Sub-commands defined next to the layer they drive."""
-    out = []
-    try:
-        from .cli_analysis import add_analysis_commands
+    from .cli_analysis import add_analysis_commands
+    from .cli_demo import add_demo_commands
+    from .cli_service import add_service_commands
 
-        out.append(add_analysis_commands)
-    except ImportError:  # pragma: no cover - module added with the classifier
-        pass
-    try:
-        from .cli_service import add_service_commands
-
-        out.append(add_service_commands)
-    except ImportError:  # pragma: no cover - module added with the service
-        pass
-    return out
+    return [add_analysis_commands, add_service_commands, add_demo_commands]
 
 
 def main(argv: Sequence[str] | None = None) -> int:

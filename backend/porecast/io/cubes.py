@@ -453,6 +453,7 @@ def process_cube(
     trace_range: tuple[int, int] | None = None,
     progress: Callable[[int, int], None] | None = None,
     fsync: bool = True,
+    trace_context: bool = False,
 ) -> CubeRunResult:
     """Apply a per-sample function to attribute cubes in chunks and stream the outputs.
 
@@ -495,6 +496,10 @@ def process_cube(
     progress : callable, optional
         ``progress(done_traces, total_traces)`` after each chunk.
     fsync : bool, default True
+    trace_context : bool, default False
+        Call ``func(block, trace_index)`` with the absolute trace index of
+        every row (int64, shape (n_rows,)), for functions whose parameters
+        vary by map location (non-stationary classification).
 
     Returns
     -------
@@ -570,7 +575,15 @@ def process_cube(
             n_dead += int(dead.sum())
             n_valid = rows.shape[0]
             n_nodata += n * ns - n_valid
-            results: Mapping[str, ArrayLike] = func(rows) if n_valid else {}
+            if not n_valid:
+                results: Mapping[str, ArrayLike] = {}
+            elif trace_context:
+                trace_ids = np.repeat(np.arange(ch.traces.start, ch.traces.stop), ns)
+                if valid is not None:
+                    trace_ids = trace_ids[valid.ravel()]
+                results = func(rows, trace_ids)  # type: ignore[call-arg]
+            else:
+                results = func(rows)
             if n_valid and set(results) != set(names):
                 raise ValueError(
                     f"func returned outputs {sorted(results)}, expected {sorted(names)}"

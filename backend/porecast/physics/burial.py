@@ -252,9 +252,19 @@ def terzaghi_effective_stress(
     """
     sv = as_finite("overburden_mpa", overburden_mpa)
     pp = as_finite("pore_pressure_mpa", pore_pressure_mpa)
+    return _terzaghi(sv, pp)
+
+
+def _terzaghi(sv: FloatArray, pp: FloatArray) -> FloatArray:
+    """:func:`terzaghi_effective_stress` of finite float arrays (no finiteness check).
+
+    For callers whose stresses are built from already checked inputs; the
+    physical check (pore pressure at most the overburden) is kept.
+    """
     sigma = sv - pp
-    bad = sigma < 0.0
-    if np.any(bad):
+    # One reduction answers the usual "all valid" case; the mask is built only on failure.
+    if sigma.size and sigma.min() < 0.0:
+        bad = sigma < 0.0
         where = np.argwhere(bad)[0]
         raise ValueError(
             "pore_pressure_mpa must not exceed overburden_mpa (effective stress must be at "
@@ -324,9 +334,12 @@ def burial_paths(
     z_now, uplift, grad, op = np.broadcast_arrays(z_now, uplift, grad, op)
     ages = template.control_ages()
     nt = ages.size
-    shape = z_now.shape + (nt,)
-    z_max = (z_now + uplift)[..., None]
-    if np.any(z_max > DEPTH_RANGE_M[1]):
+    # Work time-major, one contiguous row of locations per age, and return
+    # (..., n_times) views of those arrays: every per-age step is then one
+    # long vector operation instead of many operations across short rows.
+    shape = (nt,) + z_now.shape
+    z_max = z_now + uplift
+    if z_max.size and z_max.max() > DEPTH_RANGE_M[1]:
         raise ValueError(
             f"present_depth_m + net_uplift_m must be at most {DEPTH_RANGE_M[1]:g} m"
         )
@@ -335,25 +348,39 @@ def burial_paths(
     after = ages <= end
     during = ~burial & ~after
     depth = np.empty(shape)
-    depth[..., burial] = template.at_ages("depth_fraction", ages[burial]) * z_max
-    depth[..., after] = z_now[..., None]
-    if np.any(during):
-        w = (start - ages[during]) / (start - end)
-        depth[..., during] = z_max + (z_now[..., None] - z_max) * w
+    for i, frac in zip(np.flatnonzero(burial), template.at_ages("depth_fraction", ages[burial]),
+                       strict=True):
+        np.multiply(frac, z_max, out=depth[i, ...])
+    depth[after] = z_now
+    for i in np.flatnonzero(during):
+        w = (start - ages[i]) / (start - end)
+        np.multiply(z_now - z_max, w, out=depth[i, ...])
+        depth[i, ...] += z_max
 
     ts = template.at_ages("surface_temperature_c", ages)
     gf = template.at_ages("gradient_factor", ages)
     of = template.at_ages("overpressure_factor", ages)
-    temperature = ts + grad[..., None] * gf * depth * 1e-3
-    hydro = rho_w * STANDARD_GRAVITY * depth * 1e-3
-    pore = hydro + op[..., None] * of
-    if np.any(pore < 0.0):
+    # Scalar factors are folded first (1e-3: per km and kPa to MPa), so each
+    # age costs three vector operations for temperature and one per pressure.
+    temperature = np.empty(shape)
+    pore = np.empty(shape)
+    for i in range(nt):
+        t = np.multiply(depth[i, ...], gf[i] * 1e-3, out=temperature[i, ...])
+        t *= grad
+        t += ts[i]
+        np.multiply(op, of[i], out=pore[i, ...])
+    hydro = depth * (rho_w * STANDARD_GRAVITY * 1e-3)
+    pore += hydro
+    if pore.size and pore.min() < 0.0:
         raise ValueError(
             "overpressure_mpa must not make pore pressure negative (underpressure larger "
             f"than hydrostatic; got {float(np.min(pore)):g} MPa)"
         )
-    overburden = rho_b * STANDARD_GRAVITY * depth * 1e-3
-    effective = terzaghi_effective_stress(overburden, pore)
+    overburden = depth * (rho_b * STANDARD_GRAVITY * 1e-3)
+    depth, temperature, hydro, pore, overburden = (
+        np.moveaxis(a, 0, -1) for a in (depth, temperature, hydro, pore, overburden)
+    )
+    effective = _terzaghi(overburden, pore)
     return BurialHistory(ages, depth, temperature, hydro, pore, overburden, effective)
 
 
@@ -393,12 +420,30 @@ def segment_fraction_above(t_start: ArrayLike, t_end: ArrayLike, threshold: Arra
     t0 = np.asarray(t_start, dtype=np.float64)
     t1 = np.asarray(t_end, dtype=np.float64)
     thr = np.asarray(threshold, dtype=np.float64)
-    d = t1 - t0
-    shape = np.broadcast_shapes(t0.shape, t1.shape, thr.shape)
-    flat = np.array(np.broadcast_to(np.where(t0 >= thr, 1.0, 0.0), shape))
+    return _segment_fraction_above_clipped(t0, t1, np.maximum(t0, thr), np.maximum(t1, thr))
+
+
+def _segment_fraction_above_clipped(
+    t_start: FloatArray, t_end: FloatArray, clipped_start: FloatArray, clipped_end: FloatArray
+) -> FloatArray:
+    """:func:`segment_fraction_above` from the end values and their clipped values.
+
+    ``clipped_start = max(t_start, threshold)`` and likewise for the end; a
+    caller that needs those clipped values anyway (the Walderhaug integral)
+    passes them in instead of having them computed twice. Float arrays only.
+    """
+    shape = np.broadcast_shapes(t_start.shape, t_end.shape, clipped_start.shape,
+                                clipped_end.shape)
+    d = t_end - t_start
     # (max(T1, thr) - max(T0, thr)) / (T1 - T0) covers every case of a line; a
     # flat segment is wholly above or wholly below (exact limit, no epsilon).
-    return np.divide(np.maximum(t1, thr) - np.maximum(t0, thr), d, out=flat, where=d != 0.0)
+    if np.size(d) and np.count_nonzero(d) == np.size(d):
+        # No flat segment: the plain division (about half the cost of a masked
+        # one); its result already has the broadcast shape of the four inputs.
+        return (clipped_end - clipped_start) / d
+    # A flat segment is wholly above (clipped start = start) or wholly below.
+    flat = np.broadcast_to(clipped_start == t_start, shape).astype(np.float64)
+    return np.divide(clipped_end - clipped_start, d, out=flat, where=d != 0.0)
 
 
 def time_above_temperature(
@@ -424,9 +469,18 @@ def time_above_temperature(
     temp = as_finite("temperature_c", temperature_c)
     if temp.ndim < 1 or temp.shape[-1] != ages.shape[-1]:
         raise ValueError("temperature_c must have one value per age along its last axis")
-    thr = as_finite("threshold_c", threshold_c)[..., None]
-    frac = segment_fraction_above(temp[..., :-1], temp[..., 1:], thr)
-    return np.sum(frac * (ages[..., :-1] - ages[..., 1:]), axis=-1)
+    thr = as_finite("threshold_c", threshold_c)
+    # Segment by segment: each step works on one value per path, so the
+    # temporaries stay small enough for the CPU cache on long runs of paths.
+    total = np.zeros(np.broadcast_shapes(temp.shape[:-1], ages.shape[:-1], thr.shape))
+    lowest = np.min(thr) if thr.size else -np.inf
+    for i in range(temp.shape[-1] - 1):
+        t0, t1 = temp[..., i], temp[..., i + 1]
+        if t0.size and max(np.max(t0), np.max(t1)) < lowest:
+            continue  # every path is below the threshold on this segment: it adds exactly 0
+        frac = _segment_fraction_above_clipped(t0, t1, np.maximum(t0, thr), np.maximum(t1, thr))
+        total = total + frac * (ages[..., i] - ages[..., i + 1])
+    return total
 
 
 def time_above(history: BurialHistory, temperature_threshold_c: ArrayLike) -> FloatArray:
@@ -453,9 +507,14 @@ def onset_age(history: BurialHistory, threshold_c: ArrayLike) -> FloatArray:
     temp = history.temperature_c
     thr = as_finite("threshold_c", threshold_c)
     thr_b = np.broadcast_to(thr, temp.shape[:-1])
-    reached = temp >= thr_b[..., None]
-    first = np.argmax(reached, axis=-1)
-    ever = np.any(reached, axis=-1)
+    # Index of the first age at or above the threshold, found age by age from
+    # the youngest (whole-array steps; argmax along the short age axis is slower).
+    n_times = temp.shape[-1]
+    first = np.full(thr_b.shape, n_times, dtype=np.intp)
+    for i in range(n_times - 1, -1, -1):
+        np.copyto(first, i, where=temp[..., i] >= thr_b)
+    ever = first < n_times
+    first[~ever] = 0
     prev = np.maximum(first - 1, 0)
     t_hi = np.take_along_axis(temp, first[..., None], axis=-1)[..., 0]
     t_lo = np.take_along_axis(temp, prev[..., None], axis=-1)[..., 0]

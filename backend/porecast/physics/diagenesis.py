@@ -39,11 +39,13 @@ fractions and volumes as fractions.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+
 import numpy as np
 from numpy.typing import ArrayLike
 
 from porecast.physics._checks import FloatArray, in_range
-from porecast.physics.burial import check_age_axis, segment_fraction_above
+from porecast.physics.burial import _segment_fraction_above_clipped, check_age_axis
 
 #: Walderhaug (1996) rate coefficient a, mol/(cm2 s) (from memory).
 WALDERHAUG_A_MOL_PER_CM2_S = 1.98e-22
@@ -223,32 +225,60 @@ def walderhaug_exposure(
     ndarray
         I at each age, Ma (0 at the oldest age), shape (..., n_times).
     """
+    ages, temp, onset, bl, shape = _exposure_inputs(
+        age_ma, temperature_c, onset_c, rate_exponent_per_c
+    )
+    # Age-major (Fortran) order keeps each age's values contiguous.
+    out = np.zeros(shape, order="F")
+    for i, growth in _exposure_segments(ages, temp, onset, bl):
+        # The running sum adds the segments in order, as np.cumsum would.
+        np.add(out[..., i], growth, out=out[..., i + 1])
+    return out
+
+
+def _exposure_inputs(
+    age_ma: ArrayLike, temperature_c: ArrayLike, onset_c: ArrayLike, rate_exponent_per_c: float
+) -> tuple[FloatArray, FloatArray, FloatArray, float, tuple[int, ...]]:
+    """Checked ages, temperatures and onset, b ln10, and the broadcast (..., n_times) shape."""
     ages = check_age_axis(age_ma)
     temp = in_range("temperature_c", temperature_c, *TEMPERATURE_RANGE_C, unit="degC")
     if temp.ndim < 1 or temp.shape[-1] != ages.shape[-1]:
         raise ValueError("temperature_c must have one value per age along its last axis")
     onset = in_range("onset_c", onset_c, *ONSET_RANGE_C, unit="degC")
     _, b = _rate_law(WALDERHAUG_A_MOL_PER_CM2_S, rate_exponent_per_c)
-    bl = b * _LN10
     shape = np.broadcast_shapes(temp.shape, ages.shape, onset.shape + (1,))
-    thr = onset[..., None]
-    t0 = temp[..., :-1]
-    t1 = temp[..., 1:]
-    c0 = np.maximum(t0, thr)
-    x = np.maximum(t1, thr)
-    x -= c0
-    x *= bl
-    growth = np.divide(np.expm1(x), x, out=np.ones(x.shape), where=x != 0.0)
-    del x
-    growth *= segment_fraction_above(t0, t1, thr)
-    c0 *= bl
-    growth *= np.exp(c0, out=c0)
-    # Not in place: per-path ages may broadcast growth to a larger shape.
-    growth = growth * (ages[..., :-1] - ages[..., 1:])
-    out = np.zeros(shape)
-    np.cumsum(np.broadcast_to(growth, shape[:-1] + (shape[-1] - 1,)), axis=-1,
-              out=out[..., 1:])
-    return out
+    return ages, temp, onset, b * _LN10, shape
+
+
+def _exposure_segments(
+    ages: FloatArray, temp: FloatArray, onset: FloatArray, bl: float
+) -> Iterator[tuple[int, FloatArray | float]]:
+    """Per segment i (ages i to i + 1), its contribution to the Walderhaug integral, Ma.
+
+    The closed form of :func:`walderhaug_exposure`, evaluated segment by
+    segment on one value per path at a time, so the temporaries stay small
+    enough for the CPU cache on long runs of paths.
+    """
+    coldest_onset = np.min(onset) if onset.size else -np.inf
+    for i in range(temp.shape[-1] - 1):
+        t0, t1 = temp[..., i], temp[..., i + 1]
+        if t0.size and max(np.max(t0), np.max(t1)) < coldest_onset:
+            # Every path is below onset on this segment: its integral is exactly 0.
+            yield i, 0.0
+            continue
+        c0 = np.maximum(t0, onset)
+        c1 = np.maximum(t1, onset)
+        # The clipped temperatures serve both the fraction above onset and the integral.
+        above = _segment_fraction_above_clipped(t0, t1, c0, c1)
+        x = (c1 - c0) * bl
+        growth = above * np.divide(np.expm1(x), x, out=np.ones(np.shape(x)), where=x != 0.0)
+        growth *= np.exp(c0 * bl)
+        yield i, growth * (ages[..., i] - ages[..., i + 1])
+
+
+def _cement_volume(porosity_onset: FloatArray, k: FloatArray, exposure: FloatArray) -> FloatArray:
+    """Walderhaug cement ``Vq = phi0 (1 - exp(-k I))`` (module notes), fraction of bulk rock."""
+    return -porosity_onset * np.expm1(-k * exposure)
 
 
 def quartz_cement(
@@ -303,7 +333,50 @@ def quartz_cement(
         age_ma, temperature_c, onset_c=onset_c, rate_exponent_per_c=rate_exponent_per_c
     )
     phi0 = np.asarray(porosity_onset, dtype=np.float64)[..., None]
-    return -phi0 * np.expm1(-k[..., None] * exposure)
+    return _cement_volume(phi0, k[..., None], exposure)
+
+
+def quartz_cement_at_present(
+    age_ma: ArrayLike,
+    temperature_c: ArrayLike,
+    *,
+    grain_size_mm: ArrayLike,
+    quartz_fraction: ArrayLike,
+    coating_fraction: ArrayLike,
+    porosity_onset: ArrayLike,
+    onset_c: ArrayLike = DEFAULT_ONSET_C,
+    rate_coefficient_mol_per_cm2_s: float = WALDERHAUG_A_MOL_PER_CM2_S,
+    rate_exponent_per_c: float = WALDERHAUG_B_PER_C,
+) -> FloatArray:
+    """Quartz cement volume at the last age of the paths (the present day), Walderhaug (1996).
+
+    The last age of :func:`quartz_cement` (same arguments, same value),
+    without building the cement at the earlier ages.
+
+    Parameters
+    ----------
+    age_ma, temperature_c, grain_size_mm, quartz_fraction, coating_fraction, porosity_onset
+        As for :func:`quartz_cement` (Ma, degC, mm, fractions).
+    onset_c, rate_coefficient_mol_per_cm2_s, rate_exponent_per_c
+        As for :func:`quartz_cement` (degC, mol/(cm2 s), 1/degC).
+
+    Returns
+    -------
+    ndarray
+        Cement volume as a fraction of bulk rock, shape (...).
+    """
+    k = walderhaug_rate_constant(
+        grain_size_mm, quartz_fraction, coating_fraction, porosity_onset,
+        rate_coefficient_mol_per_cm2_s=rate_coefficient_mol_per_cm2_s,
+    )
+    ages, temp, onset, bl, shape = _exposure_inputs(
+        age_ma, temperature_c, onset_c, rate_exponent_per_c
+    )
+    # The same additions, in the same order, as the running sum of walderhaug_exposure.
+    exposure = np.zeros(shape[:-1])
+    for _, growth in _exposure_segments(ages, temp, onset, bl):
+        exposure = exposure + growth
+    return _cement_volume(np.asarray(porosity_onset, dtype=np.float64), k, exposure)
 
 
 def _rate_law(a: float, b: float) -> tuple[float, float]:
@@ -323,6 +396,7 @@ __all__ = [
     "WALDERHAUG_B_PER_C",
     "bulk_quartz_fraction",
     "quartz_cement",
+    "quartz_cement_at_present",
     "walderhaug_exposure",
     "walderhaug_precipitation_rate",
     "walderhaug_rate_constant",

@@ -88,6 +88,41 @@ def sample(kind: str, params: dict[str, float], rng: np.random.Generator, size: 
     raise ValueError(f"distribution kind must be one of {', '.join(KINDS)} (got {kind!r})")
 
 
+#: Kinds whose sampler turns each value into exactly one 64-bit output of the
+#: bit generator (inverse-transform sampling from one uniform).
+_ONE_OUTPUT_PER_VALUE = ("uniform", "truncated_normal", "triangular")
+
+
+def skip(kind: str, params: dict[str, float], rng: np.random.Generator, size: int) -> bool:
+    """Move ``rng`` past ``size`` draws of a distribution without computing them, if possible.
+
+    Returns True when done: the next :func:`sample` call then returns exactly
+    what it would have after drawing ``size`` values (the forward model skips
+    inputs that no facies of a piece of the run reads, and saves the cost of
+    the inverse normal CDF and of the generator). Returns False, leaving
+    ``rng`` untouched, for the normal and lognormal laws, whose ziggurat
+    sampler uses a varying number of outputs per value, or for a generator
+    other than :class:`numpy.random.PCG64` (the one :func:`stream_for` makes);
+    the caller must then draw.
+
+    Parameters
+    ----------
+    kind, params, rng, size
+        As for :func:`sample`.
+
+    Returns
+    -------
+    bool
+    """
+    if kind == "constant" or (kind == "triangular" and params["low"] == params["high"]):
+        return True  # these samplers use no random output
+    if kind in _ONE_OUTPUT_PER_VALUE and isinstance(rng.bit_generator, np.random.PCG64):
+        # PCG64.advance(n) jumps the state by n 64-bit outputs, as n doubles would.
+        rng.bit_generator.advance(size)
+        return True
+    return False
+
+
 def support(kind: str, params: dict[str, float]) -> Support:
     """Interval a distribution's draws fall in.
 

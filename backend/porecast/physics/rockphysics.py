@@ -20,6 +20,7 @@ place.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import NamedTuple
 
 import numpy as np
@@ -115,7 +116,8 @@ def _scheme(scheme: int) -> int:
 
 def _poisson(k: FloatArray, g: FloatArray) -> FloatArray:
     """Poisson's ratio from bulk and shear modulus (isotropic elasticity, common practice)."""
-    return (3.0 * k - 2.0 * g) / (2.0 * (3.0 * k + g))
+    k3 = 3.0 * k
+    return (k3 - 2.0 * g) / (2.0 * (k3 + g))
 
 
 def _zeta(k: FloatArray, g: FloatArray) -> FloatArray:
@@ -126,30 +128,72 @@ def _zeta(k: FloatArray, g: FloatArray) -> FloatArray:
     k, g = np.broadcast_arrays(k, g)
     num = g * (9.0 * k + 8.0 * g)
     den = 6.0 * (k + 2.0 * g)
+    if num.size and np.min(g) > 0.0:
+        return num / den  # no G = 0 anywhere: the plain (cheaper) division
     return np.divide(num, den, out=np.zeros(num.shape), where=g > 0)
 
 
-def _shifted_harmonic(fractions: FloatArray, moduli: FloatArray, shift: FloatArray) -> FloatArray:
+def _shifted_harmonic(fractions: FloatArray, moduli: FloatArray, shift: ArrayLike) -> FloatArray:
     """[sum_i f_i / (M_i + s)]^-1 - s over the last axis (the HS / Reuss form).
 
     A constituent with f_i = 0 adds nothing. A constituent with f_i > 0 and
     M_i + s = 0 (a void or fluid when s = 0) makes the sum infinite and the
     result exactly 0 -- the true limit, not a guarded division.
     """
-    denom = moduli + shift[..., None]
-    f, denom = np.broadcast_arrays(fractions, denom)
+    return _shifted_harmonic_of(*_constituents(fractions, moduli), shift)
+
+
+def _shifted_harmonic_of(
+    fractions: list[FloatArray], moduli: list[FloatArray], shift: ArrayLike
+) -> FloatArray:
+    """:func:`_shifted_harmonic` with the constituents given one array each.
+
+    Summing constituent by constituent keeps every step a whole-array
+    operation (a sum along a short last axis is several times slower) and
+    adds the terms in the same order as ``np.sum`` over that axis.
+    """
+    total = None
     with np.errstate(divide="ignore"):
-        terms = np.divide(f, denom, out=np.zeros(f.shape), where=f > 0)
-    return 1.0 / terms.sum(axis=-1) - shift
+        for f, m in zip(fractions, moduli, strict=True):
+            denom = m + shift
+            if np.size(denom) and np.min(denom) > 0.0:
+                # No zero denominator: the plain quotient is already 0 where
+                # f = 0, and about three times cheaper than a masked division.
+                term = f / denom
+            else:
+                f, denom = np.broadcast_arrays(f, denom)
+                term = np.divide(f, denom, out=np.zeros(f.shape), where=f > 0)
+            total = term if total is None else total + term
+    if total is None:
+        raise ValueError("fractions must list at least one constituent")
+    return 1.0 / total - shift
+
+
+def _constituents(*arrays: FloatArray) -> list[list[FloatArray]]:
+    """Per array, its slices along the last (constituent) axis, broadcast in length.
+
+    A 0-d array or a last axis of length 1 stands for every constituent, as in
+    numpy broadcasting; slicing keeps 1-D moduli as scalars (no stride-0 copies).
+    """
+    n = np.broadcast_shapes(*(a.shape[-1:] for a in arrays))
+    count = n[0] if n else 1
+    return [
+        [a if a.ndim == 0 else a[..., i if a.shape[-1] > 1 else 0] for i in range(count)]
+        for a in arrays
+    ]
 
 
 def _voigt(fractions: FloatArray, moduli: FloatArray) -> FloatArray:
-    return np.sum(fractions * moduli, axis=-1)
+    # Constituent by constituent, for the reason given in _shifted_harmonic_of.
+    total = None
+    for f, m in zip(*_constituents(fractions, moduli), strict=True):
+        term = f * m
+        total = term if total is None else total + term
+    return total
 
 
 def _reuss(fractions: FloatArray, moduli: FloatArray) -> FloatArray:
-    shape = np.broadcast_shapes(fractions.shape, moduli.shape)[:-1]
-    return _shifted_harmonic(fractions, moduli, np.zeros(shape))
+    return _shifted_harmonic(fractions, moduli, 0.0)
 
 
 def _modified_hs_lower(
@@ -166,11 +210,10 @@ def _modified_hs_lower(
     grain pack at its porosity) takes the place of the softest phase, with
     volume fraction ``fraction_end`` = porosity / end-member porosity.
     """
-    f = np.stack(np.broadcast_arrays(fraction_end, 1.0 - fraction_end), axis=-1)
-    k = np.stack(np.broadcast_arrays(k_end, k_mineral), axis=-1)
-    g = np.stack(np.broadcast_arrays(g_end, g_mineral), axis=-1)
-    k_dry = _shifted_harmonic(f, k, 4.0 / 3.0 * g_end)
-    g_dry = _shifted_harmonic(f, g, _zeta(k_end, g_end))
+    # Two constituents passed one array each: no stacked (..., 2) copies.
+    f = [fraction_end, 1.0 - fraction_end]
+    k_dry = _shifted_harmonic_of(f, [k_end, k_mineral], 4.0 / 3.0 * g_end)
+    g_dry = _shifted_harmonic_of(f, [g_end, g_mineral], _zeta(k_end, g_end))
     return Moduli(k_dry, g_dry)
 
 
@@ -251,6 +294,48 @@ def voigt_reuss_hill(fractions: ArrayLike, k: ArrayLike, g: ArrayLike) -> Moduli
     kk = in_range("k", k, 0.0, unit="GPa")
     gg = in_range("g", g, 0.0, unit="GPa")
     return Moduli(0.5 * (_voigt(f, kk) + _reuss(f, kk)), 0.5 * (_voigt(f, gg) + _reuss(f, gg)))
+
+
+class MineralMix(NamedTuple):
+    """Effective mineral of a mixture: bulk and shear modulus (GPa), density (g/cm3)."""
+
+    k: FloatArray
+    g: FloatArray
+    density: FloatArray
+
+
+def mineral_mix(fractions: ArrayLike, minerals: Sequence[str]) -> MineralMix:
+    """Effective mineral of a mixture of :data:`MINERALS`: Voigt-Reuss-Hill moduli, mean density.
+
+    Moduli by :func:`voigt_reuss_hill` (Hill 1952; RPH section 4.3), density
+    as the volume average (:func:`voigt`), with the fractions checked once.
+
+    Parameters
+    ----------
+    fractions : array_like, shape (..., n_minerals)
+        Volume fraction of each mineral, summing to 1 along the last axis.
+    minerals : sequence of str
+        Names in :data:`MINERALS`, one per entry of the last axis.
+
+    Returns
+    -------
+    MineralMix
+        ``k``, ``g`` in GPa and ``density`` in g/cm3, shape (...).
+    """
+    unknown = [m for m in minerals if m not in MINERALS]
+    if unknown:
+        raise ValueError(f"minerals must be names in MINERALS ({', '.join(MINERALS)});"
+                         f" got {', '.join(map(repr, unknown))}")
+    f = _fractions("fractions", fractions)
+    if f.shape[-1] != len(minerals):
+        raise ValueError(f"fractions must have one entry per mineral ({len(minerals)}) along"
+                         f" the last axis (got {f.shape[-1]})")
+    k = np.array([MINERALS[m].k for m in minerals])
+    g = np.array([MINERALS[m].g for m in minerals])
+    rho = np.array([MINERALS[m].density for m in minerals])
+    return MineralMix(
+        0.5 * (_voigt(f, k) + _reuss(f, k)), 0.5 * (_voigt(f, g) + _reuss(f, g)), _voigt(f, rho)
+    )
 
 
 def hashin_shtrikman_bounds(
@@ -335,11 +420,16 @@ def gassmann(
     phi = in_range("porosity", porosity, 0.0, 1.0)
     _at_most("k_dry", kd, "k_mineral", km)
     _at_most("k_fluid", kf, "k_mineral", km)
-    num = (km - kd) ** 2 * kf
-    den = phi * km * (km - kf) + kf * (km - kd)
+    dk = km - kd
+    num = dk * dk * kf
+    den = phi * km * (km - kf) + kf * dk
     # num > 0 implies den >= kf (km - kd) > 0; num = 0 (no fluid stiffness, or a
     # frame as stiff as the mineral) means no stiffening at all.
-    increment = np.divide(num, den, out=np.zeros(np.broadcast(num, den).shape), where=num > 0)
+    if np.size(num) and np.min(num) > 0.0:
+        increment = num / den  # every num > 0: the plain (cheaper) division is safe
+    else:
+        increment = np.divide(num, den, out=np.zeros(np.broadcast(num, den).shape),
+                              where=num > 0)
     k_sat = kd + increment
     return Moduli(k_sat, np.broadcast_to(gd, np.broadcast_shapes(gd.shape, k_sat.shape)).copy())
 
@@ -479,6 +569,13 @@ def hertz_mindlin(
     phic, n = _check_pack(porosity_critical, coordination)
     p = in_range("pressure_mpa", pressure_mpa, 0.0, unit="MPa")
     f = in_range("slip_factor", slip_factor, 0.0, 1.0)
+    return _hertz_mindlin(k, g, phic, n, p, f)
+
+
+def _hertz_mindlin(
+    k: FloatArray, g: FloatArray, phic: FloatArray, n: FloatArray, p: FloatArray, f: FloatArray
+) -> Moduli:
+    """:func:`hertz_mindlin` of checked arguments."""
     nu = _poisson(k, g)
     p_gpa = p * 1e-3
     base = (n * (1.0 - phic) * g) ** 2 * p_gpa / (np.pi * (1.0 - nu)) ** 2
@@ -525,10 +622,13 @@ def friable_sand(
         Dry-frame bulk and shear modulus, GPa.
     """
     k, g = _check_mineral(k_mineral, g_mineral)
-    phic, _ = _check_pack(porosity_critical, coordination)
+    phic, n = _check_pack(porosity_critical, coordination)
     phi = in_range("porosity", porosity, 0.0, 1.0)
     _at_most("porosity", phi, "porosity_critical", phic)
-    k_hm, g_hm = hertz_mindlin(k, g, phic, coordination, pressure_mpa, slip_factor=slip_factor)
+    p = in_range("pressure_mpa", pressure_mpa, 0.0, unit="MPa")
+    f = in_range("slip_factor", slip_factor, 0.0, 1.0)
+    # The pack's arguments are checked above: the Hertz-Mindlin core need not check them again.
+    k_hm, g_hm = _hertz_mindlin(k, g, phic, n, p, f)
     return _modified_hs_lower(phi / phic, k_hm, g_hm, k, g)
 
 
@@ -600,15 +700,25 @@ def contact_cement(
     lam_n = 2.0 * gc * (1.0 - nu) * (1.0 - nu_c) / (np.pi * g * (1.0 - 2.0 * nu_c))
     lam_t = gc / (np.pi * g)
 
-    a_n = -0.024153 * lam_n**-1.3646
-    b_n = 0.20405 * lam_n**-0.89008
-    c_n = 0.00024649 * lam_n**-1.9864
+    # Powers lam**e written exp(e ln lam), with each logarithm taken once:
+    # half the cost of six array powers, the same values to round-off.
+    ln_n = np.log(lam_n)
+    a_n = -0.024153 * np.exp(-1.3646 * ln_n)
+    b_n = 0.20405 * np.exp(-0.89008 * ln_n)
+    c_n = 0.00024649 * np.exp(-1.9864 * ln_n)
     s_n = (a_n * alpha + b_n) * alpha + c_n
 
     nu2 = nu * nu
-    a_t = -1e-2 * (2.26 * nu2 + 2.07 * nu + 2.3) * lam_t ** (0.079 * nu2 + 0.1754 * nu - 1.342)
-    b_t = (0.0573 * nu2 + 0.0937 * nu + 0.202) * lam_t ** (0.0274 * nu2 + 0.0529 * nu - 0.8765)
-    c_t = 1e-4 * (9.654 * nu2 + 4.945 * nu + 3.1) * lam_t ** (0.01867 * nu2 + 0.4011 * nu - 1.8186)
+    ln_t = np.log(lam_t)
+    a_t = -1e-2 * (2.26 * nu2 + 2.07 * nu + 2.3) * np.exp(
+        (0.079 * nu2 + 0.1754 * nu - 1.342) * ln_t
+    )
+    b_t = (0.0573 * nu2 + 0.0937 * nu + 0.202) * np.exp(
+        (0.0274 * nu2 + 0.0529 * nu - 0.8765) * ln_t
+    )
+    c_t = 1e-4 * (9.654 * nu2 + 4.945 * nu + 3.1) * np.exp(
+        (0.01867 * nu2 + 0.4011 * nu - 1.8186) * ln_t
+    )
     s_t = (a_t * alpha + b_t) * alpha + c_t
 
     k_dry = n * (1.0 - phic) * (kc + 4.0 / 3.0 * gc) * s_n / 6.0
