@@ -143,3 +143,18 @@ def test_statistics_match_samples(example):
     np.testing.assert_allclose(first["mean"], res.samples[0, 0].mean(axis=0))
     np.testing.assert_allclose(first["covariance"], np.cov(res.samples[0, 0], rowvar=False))
     assert first["count"] == 30
+
+
+def test_fully_cemented_sand_stays_inside_the_bounds():
+    # A deep, hot, long-lived node cements the sand shut; the frame must stay
+    # below the Hashin-Shtrikman upper bound of its mineral (RPH section 4.1),
+    # which also keeps Gassmann's k_dry <= k_mineral.
+    doc = _single_node(default_scenario(), 2400.0, 1750.0, 46.0)
+    res = forward.simulate(validate_scenario(doc), realisations=400)
+    f = res.fields
+    sands = slice(1, 4)
+    assert f["porosity"][:, sands].min() < 0.01
+    assert np.all(f["k_dry"] <= f["k_mineral"] * (1 + 1e-12))
+    assert np.all(f["g_dry"] <= f["g_mineral"] * (1 + 1e-12))
+    # Cemented-shut sand approaches quartz: Vp close to the mineral's 6.0 km/s (RPH table).
+    assert 5000.0 < f["vp"][:, sands].max() < 6100.0

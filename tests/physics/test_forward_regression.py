@@ -220,7 +220,10 @@ def _spot(sc, grid, shape, node, fac, r):
             )[:, -1]
         phi = phi_mech - cement
         q, cl = sand["quartz_fraction"], sand["clay_fraction"]
-        f = np.stack([q, 1.0 - q - cl, cl], axis=-1)
+        grains = 1.0 - phi_mech
+        solid = grains + cement  # quartz cement is part of the solid
+        f = np.stack([(q * grains + cement) / solid, (1.0 - q - cl) * grains / solid,
+                      cl * grains / solid], axis=-1)
         vrh = rockphysics.voigt_reuss_hill(f, [36.6, 37.5, 21.0], [45.0, 15.0, 7.0])
         k_min, g_min = vrh
         rho_min = rockphysics.voigt(f, [2.65, 2.62, 2.58])
@@ -231,6 +234,10 @@ def _spot(sc, grid, shape, node, fac, r):
             k_c, g_c = rockphysics.contact_cement(k_min, g_min, quartz.k, quartz.g, phi,
                                                   phi_mech, coord, rp.cement_scheme)
             k_dry, g_dry = np.maximum(k_dry, k_c), np.maximum(g_dry, g_c)
+        # held at the Hashin-Shtrikman upper bound of mineral and empty pores
+        hs = rockphysics.hashin_shtrikman_bounds([[1.0 - phi[0], phi[0]]],
+                                                 [[k_min[0], 0.0]], [[g_min[0], 0.0]])
+        k_dry, g_dry = np.minimum(k_dry, hs.k_upper), np.minimum(g_dry, hs.g_upper)
     fl = rp.fluids
 
     def fluid_input(name):

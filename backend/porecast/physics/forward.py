@@ -693,8 +693,15 @@ class _Chain:
             clay = take(f"{cap_path}.clay_fraction#facies")
             m = _mineral_mix({"clay": clay, "quartz": 1.0 - clay})
         else:
+            # The solid of a cemented sand is its grains plus the quartz cement.
             q, cl = sand["quartz_fraction"], sand["clay_fraction"]
-            m = _mineral_mix({"quartz": q, "feldspar": 1.0 - q - cl, "clay": cl})
+            grains = 1.0 - phi_mech
+            solid = grains + cement
+            m = _mineral_mix({
+                "quartz": (q * grains + cement) / solid,
+                "feldspar": (1.0 - q - cl) * grains / solid,
+                "clay": cl * grains / solid,
+            })
         step("minerals")
 
         # --- dry rock
@@ -885,10 +892,18 @@ def _sand_dry(
         coord,
         rp.cement_scheme,
     )
-    return (
-        np.where(has_cement, np.maximum(k_f, k_c), k_f),
-        np.where(has_cement, np.maximum(g_f, g_c), g_f),
+    k = np.where(has_cement, np.maximum(k_f, k_c), k_f)
+    g = np.where(has_cement, np.maximum(g_f, g_c), g_f)
+    # The contact-cement fit extrapolated to large cement volumes (porosity
+    # near zero) can overshoot what any frame of this mineral can reach; no dry
+    # frame is stiffer than the Hashin-Shtrikman upper bound of mineral and
+    # empty pores (RPH section 4.1), so the frame is held at that bound.
+    hs = rockphysics.hashin_shtrikman_bounds(
+        np.stack([1.0 - phi, phi]).T,
+        np.stack([m.k, np.zeros(phi.shape)]).T,
+        np.stack([m.g, np.zeros(phi.shape)]).T,
     )
+    return np.minimum(k, hs.k_upper), np.minimum(g, hs.g_upper)
 
 
 def _at_age(ages: FloatArray, values: FloatArray, age: FloatArray) -> FloatArray:
