@@ -1,4 +1,4 @@
-"""Service commands of the ``porecast`` CLI: ``serve``, ``createuser``, ``db upgrade``.
+"""Service commands of the ``porecast`` CLI: ``serve``, ``worker``, ``createuser``, ``db upgrade``.
 
 The functions take plain arguments so they can be called from code and tests;
 :func:`add_service_commands` registers them on the main parser's sub-parsers.
@@ -21,7 +21,16 @@ from porecast.settings import Settings, load_settings
 #: before starting the web server, e.g. to start a Celery worker process for
 #: the one-machine set-up. It returns a callable that stops what it started.
 StartWorker = Callable[[Settings], Callable[[], None]]
-start_worker_hook: StartWorker | None = None
+
+
+def start_local_worker(settings: Settings) -> Callable[[], None]:
+    """Recover runs left by a previous server, start ``porecast worker`` as a child process."""
+    from porecast.worker.local import start_local_worker as start
+
+    return start(settings)
+
+
+start_worker_hook: StartWorker | None = start_local_worker
 
 
 def db_upgrade(settings: Settings | None = None, revision: str = "head") -> str:
@@ -68,11 +77,14 @@ def serve(
     upgrade_db: bool = True,
     settings: Settings | None = None,
     run: Callable[..., Any] | None = None,
+    start_worker: bool = True,
 ) -> None:
     """Run the web app with uvicorn (migrating the database first).
 
-    ``start_worker_hook`` (set by the worker step) is called before the server
-    starts and its stop function after it ends.
+    ``start_worker_hook`` (by default: recover runs left by a previous server and
+    start a local ``porecast worker``) is called before the server starts and its
+    stop function after it ends; ``start_worker=False`` skips it (workers run
+    elsewhere).
     """
     import uvicorn
 
@@ -84,7 +96,8 @@ def serve(
     settings = settings or load_settings(**overrides)
     if upgrade_db:
         db_upgrade(settings)
-    stop = start_worker_hook(settings) if start_worker_hook is not None else None
+    hook = start_worker_hook if start_worker else None
+    stop = hook(settings) if hook is not None else None
     try:
         (run or uvicorn.run)(create_app(settings), host=host, port=port, proxy_headers=True)
     finally:
@@ -104,9 +117,26 @@ def _settings_from(args: argparse.Namespace) -> Settings:
     return load_settings(getattr(args, "settings", None), **overrides)
 
 
+def _job_settings_file(args: argparse.Namespace) -> None:
+    # The job settings (porecast.worker.config) and a local worker process read the
+    # settings file named in the environment, like porecast.settings does.
+    if getattr(args, "settings", None):
+        os.environ["PORECAST_SETTINGS_FILE"] = str(Path(args.settings).resolve())
+
+
 def _cmd_serve(args: argparse.Namespace) -> int:
-    serve(args.host, args.port, settings=_settings_from(args), upgrade_db=not args.no_upgrade)
+    _job_settings_file(args)
+    serve(args.host, args.port, settings=_settings_from(args), upgrade_db=not args.no_upgrade,
+          start_worker=not args.no_worker)
     return 0
+
+
+def _cmd_worker(args: argparse.Namespace) -> int:
+    from porecast.worker.local import run_worker
+
+    _job_settings_file(args)
+    return run_worker(_settings_from(args), hostname=args.hostname,
+                      concurrency=args.concurrency, pool=args.pool, loglevel=args.loglevel)
 
 
 def _cmd_createuser(args: argparse.Namespace) -> int:
@@ -154,8 +184,21 @@ def add_service_commands(subparsers: Any) -> None:
     p.add_argument("--host", default="127.0.0.1", help="bind address (default %(default)s)")
     p.add_argument("--port", type=int, default=8000, help="port (default %(default)s)")
     p.add_argument("--no-upgrade", action="store_true", help="do not migrate the database")
+    p.add_argument("--no-worker", action="store_true",
+                   help="start no local worker (workers run as `porecast worker` elsewhere)")
     _common(p)
     p.set_defaults(handler=_cmd_serve)
+
+    p = subparsers.add_parser("worker", help="run a worker that executes runs (Celery)")
+    p.add_argument("-n", "--hostname", default="porecast@%h",
+                   help="worker name, unique per worker (default %(default)s; %%h = host name)")
+    p.add_argument("-c", "--concurrency", type=int, default=None,
+                   help="processes (default: PORECAST_WORKER_CONCURRENCY or one per CPU)")
+    p.add_argument("-P", "--pool", choices=("prefork", "solo"), default=None,
+                   help="pool (default: PORECAST_WORKER_POOL or prefork)")
+    p.add_argument("-l", "--loglevel", default="INFO", help="log level (default %(default)s)")
+    _common(p)
+    p.set_defaults(handler=_cmd_worker)
 
     p = subparsers.add_parser("createuser", help="create a user account")
     p.add_argument("username")

@@ -128,6 +128,12 @@ def build_app(settings: Settings, connection: Connection, clock: FakeClock) -> A
     return app
 
 
+@pytest.fixture
+def make_app() -> Any:
+    """The app builder, for tests that need their own settings."""
+    return build_app
+
+
 @pytest.fixture(scope="session")
 def shared_app(engine: Engine, tmp_path_factory: pytest.TempPathFactory) -> Any:
     """One app per database, built once (building routes costs ~0.3 s); the per-test

@@ -52,10 +52,8 @@ def test_cookie_flags(app, team):
     assert "Secure" in _set_cookie_headers(r)["porecast_session"]
 
 
-def test_cookie_secure_setting(settings, connection, clock, team):
-    from conftest import build_app
-
-    app = build_app(settings.model_copy(update={"cookie_secure": True}), connection, clock)
+def test_cookie_secure_setting(settings, connection, clock, team, make_app):
+    app = make_app(settings.model_copy(update={"cookie_secure": True}), connection, clock)
     r = _login(TestClient(app))
     assert "Secure" in _set_cookie_headers(r)["porecast_session"]
 

@@ -14,10 +14,16 @@ actor does not hide the object from the next) and the status must be:
 
 from __future__ import annotations
 
+import shutil
+import sys
+from pathlib import Path
 from typing import Any
 
 import pytest
 from api_helpers import PASSWORD, ROLES, csv_map_bytes, las_bytes
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "worker"))
+import run_data  # noqa: E402  (tests/worker: invented run inputs)
 
 MEMBER_ROLES = set(ROLES)
 READERS = {"owner", "basin_modeller", "geologist", "geophysicist", "reviewer"}
@@ -86,13 +92,92 @@ RULES: dict[tuple[str, str], tuple[set[str], bool]] = {
     ("GET", "/api/prospects/{prospect_id}"): (MEMBER_ROLES, True),
     ("PATCH", "/api/prospects/{prospect_id}"): (CONTRIBUTORS, True),
     ("DELETE", "/api/prospects/{prospect_id}"): (CONTRIBUTORS, True),
+    ("POST", "/api/scenarios/{scenario_id}/runs"): (CONTRIBUTORS, True),
+    ("GET", "/api/projects/{project_id}/runs"): (MEMBER_ROLES, True),
+    ("GET", "/api/runs/{run_id}"): (MEMBER_ROLES, True),
+    ("GET", "/api/runs/{run_id}/events"): (MEMBER_ROLES, True),
+    ("POST", "/api/runs/{run_id}/cancel"): (CONTRIBUTORS, True),
+    ("GET", "/api/runs/{run_id}/log"): (MEMBER_ROLES, True),
+    ("GET", "/api/runs/{run_id}/artefacts/{name}"): (READERS, True),
+    ("GET", "/api/runs/{run_id}/map"): (READERS, True),
+    ("GET", "/api/runs/{run_id}/section"): (READERS, True),
+    ("GET", "/api/projects/{project_id}/risk-summary"): (MEMBER_ROLES, True),
+    ("POST", "/api/scenarios/{scenario_id}/preview"): (READERS, True),
+    ("POST", "/api/scenarios/{scenario_id}/validate"): (READERS, True),
+    ("POST", "/api/distributions/density"): (EVERYONE, False),
 }
 
 OUTLINE = [[0.0, 0.0], [1000.0, 0.0], [1000.0, 800.0], [0.0, 800.0]]
 
 
+@pytest.fixture(scope="session")
+def run_outputs(tmp_path_factory) -> dict[str, Any]:
+    """Real outputs of a map and a cube classification, computed once and copied per test."""
+    from threadpoolctl import threadpool_limits
+
+    from porecast.services import classification as cls
+    from porecast.services import run_execution as ex
+
+    root = tmp_path_factory.mktemp("run-outputs")
+    doc = run_data.document()
+    with threadpool_limits(1):
+        maps = run_data.write_maps(root / "maps-in")
+        (root / "map").mkdir()
+        ex.classify_map_outputs(doc, doc["seed"], {a: maps[a] for a in ("intercept", "gradient")},
+                                {c: maps[c] for c in run_data.VARYING}, [], root / "map",
+                                realisations=100)
+        cubes = run_data.write_cubes(root / "cube-in")
+        _, _, model = ex.train_model(doc, doc["seed"], realisations=100)
+        covs = ex.read_covariate_arrays(model, {c: cubes[c] for c in run_data.VARYING})
+        (root / "cube").mkdir()
+        cls.classify_cube(model, {a: cubes[a] for a in model.attributes}, covs, root / "cube")
+    info = {"facies": list(model.facies), "hydrocarbon": list(model.hydrocarbon)}
+    return {"map": (root / "map", {"input": "map", **info}),
+            "cube": (root / "cube", {"input": "cube", **info})}
+
+
+def _run_world(team, scenario, app, db, run_outputs) -> dict[str, Any]:
+    """A queued run, and a finished map and cube classification with their files."""
+    from porecast.db.models import Run, ScenarioRevision
+    from porecast.services.run_steps import run_dir
+
+    owner, sid = team["owner"], scenario["id"]
+    for section in ("burial", "geology", "rockphysics"):
+        etag = owner.get(f"/api/scenarios/{sid}/sections/{section}").headers["ETag"]
+        owner.put(f"/api/scenarios/{sid}/sections/{section}/ready", json={"ready": True},
+                  headers={"If-Match": etag})
+    queued = owner.post(f"/api/scenarios/{sid}/runs", json={"kind": "simulate"})
+    assert queued.status_code == 202, queued.text
+    rev = db.query(ScenarioRevision).filter_by(scenario_id=sid).order_by(
+        ScenarioRevision.number.desc()).first()
+    now = app.state.clock()
+    ids = {"queued_run_id": queued.json()["id"]}
+    for kind, (folder, result) in run_outputs.items():
+        run = Run(project_id=team.project_id, scenario_id=sid, scenario_revision_id=rev.id,
+                  kind="classify", status="succeeded", progress_current=1000,
+                  progress_total=1000, seed=1, input_hash="0" * 64, parameters={},
+                  readiness_override=False, created_by_id=team.users["owner"].id,
+                  created_at=now, started_at=now, finished_at=now, stage="done",
+                  result=result)
+        db.add(run)
+        db.flush()
+        shutil.copytree(folder, run_dir(app.state.settings.data_dir, run.id))
+        ids[f"{kind}_run_id"] = run.id
+    db.commit()
+    return ids
+
+
+def _with_run_id(path: str, ids: dict[str, Any]) -> dict[str, Any]:
+    """The run a run route is tried on: cube for sections, queued for cancel, else the map."""
+    if "{run_id}" not in path:
+        return ids
+    which = "cube" if path.endswith("/section") else "queued" if path.endswith("/cancel") \
+        else "map"
+    return {**ids, "run_id": ids[f"{which}_run_id"]}
+
+
 @pytest.fixture
-def world(team, scenario, tmp_path) -> dict[str, Any]:
+def world(team, scenario, tmp_path, app, db, run_outputs) -> dict[str, Any]:
     """One object of every kind in the team project, made by the owner."""
     owner, pid = team["owner"], team.project_id
     octet = {"Content-Type": "application/octet-stream"}
@@ -108,16 +193,20 @@ def world(team, scenario, tmp_path) -> dict[str, Any]:
     tokens = owner.get("/api/auth/tokens")
     for r in (well, grid, comment, prospect, tokens):
         assert r.status_code in (200, 201), r.text
-    return {
+    ids = {
         "project_id": pid, "scenario_id": scenario["id"], "well_id": well.json()["id"],
         "grid_id": grid.json()["id"], "comment_id": comment.json()["id"],
         "prospect_id": prospect.json()["id"], "token_id": tokens.json()[0]["id"],
         "user_id": team.users["viewer"].id, "number": 1, "section": "burial", "curve": "vp",
+        "name": "summary.json",
     }
+    ids.update(_run_world(team, scenario, app, db, run_outputs))
+    return ids
 
 
 def _request(method: str, path: str, ids: dict[str, Any], team, tmp_path) -> dict[str, Any]:
     """URL and valid body/headers for one route."""
+    ids = _with_run_id(path, ids)
     url = path.format(**{k: ids[k] for k in ids if "{" + k + "}" in path})
     owner = team["owner"]
     sid = ids["scenario_id"]
@@ -151,6 +240,13 @@ def _request(method: str, path: str, ids: dict[str, Any], team, tmp_path) -> dic
         ("POST", "/api/projects/{project_id}/prospects"): {"name": "Lead B",
                                                            "outline": OUTLINE},
         ("PATCH", "/api/prospects/{prospect_id}"): {"name": "Lead A2"},
+        ("POST", "/api/scenarios/{scenario_id}/runs"): {"kind": "simulate",
+                                                        "params": {"realisations": 10}},
+        ("POST", "/api/scenarios/{scenario_id}/preview"): {"parts": ["history"],
+                                                           "realisations": 20},
+        ("POST", "/api/scenarios/{scenario_id}/validate"): {},
+        ("POST", "/api/distributions/density"): {
+            "items": [{"key": "k", "dist": {"kind": "normal", "mean": 1.0, "sd": 0.1}}]},
     }
     if (method, path) in body_for:
         kw["json"] = body_for[(method, path)]

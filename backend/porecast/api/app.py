@@ -20,7 +20,8 @@ from porecast.settings import Settings, get_settings
 
 from . import errors
 from .deps import utc_now
-from .routes import auth, comments, grids, projects, prospects, scenarios, users, wells
+from .routes import auth, comments, grids, projects, prospects, runs, scenarios, users, wells
+from .routes import previews as preview_routes
 
 API_PREFIX = "/api"
 
@@ -102,8 +103,9 @@ def create_app(
     errors.install(app)
 
     api = APIRouter(prefix=API_PREFIX)
-    for module in (auth, users, projects, scenarios, comments, wells, grids, prospects):
+    for module in (auth, users, projects, scenarios, comments, wells, grids, prospects, runs):
         api.include_router(module.router)
+    api.include_router(preview_routes.router)
     app.include_router(api)
 
     plotly_js = plotly_js_path()

@@ -35,6 +35,8 @@ ROLES = ("owner", "basin_modeller", "geologist", "geophysicist", "reviewer", "vi
 SECTION_ROLES = {"burial": "basin_modeller", "geology": "geologist", "rockphysics": "geophysicist"}
 
 RUN_STATUSES = ("queued", "running", "succeeded", "failed", "cancelled")
+#: States of one unit of work of a run; "waiting" is a join step whose tiles are not done.
+RUN_TASK_STATUSES = ("waiting", *RUN_STATUSES)
 
 _NAMING = {
     "ix": "ix_%(column_0_label)s",
@@ -359,9 +361,12 @@ class Activity(Base):
 class Run(Base):
     """A simulation/classification run tied to one scenario revision and seed.
 
-    Created here so the schema is complete; the worker step fills in the routes
-    and tasks. ``readiness_override`` records an owner starting a run although
-    not every section was marked ready.
+    ``readiness_override`` records an owner starting a run although not every
+    section was marked ready. Progress is in thousandths of the whole run
+    (``progress_total`` = 1000 once started), monotonic; ``result`` holds the
+    small summary (risk numbers), never arrays (those are files in the run's
+    result folder). The units of work (main step, cube tiles, join) are rows of
+    ``run_tasks``; the log is ``run_events``.
     """
 
     __tablename__ = "runs"
@@ -391,3 +396,56 @@ class Run(Base):
     created_at: Mapped[datetime]
     started_at: Mapped[datetime | None]
     finished_at: Mapped[datetime | None]
+    stage: Mapped[str] = mapped_column(String(120), default="")
+    eta_seconds: Mapped[float | None] = mapped_column(Float)
+    result: Mapped[dict[str, Any] | None] = mapped_column(JSON)
+
+
+class RunTask(Base):
+    """One unit of work of a run (``main``, ``tile-00003``, ``join``), its own delivery counter.
+
+    ``deliveries`` is incremented (and committed) when a worker starts the unit,
+    so a unit that keeps killing its worker is failed after the configured
+    number of tries; ``host``/``pid``/``heartbeat_at`` tell whether the process
+    holding a running unit is still alive.
+    """
+
+    __tablename__ = "run_tasks"
+    __table_args__ = (
+        UniqueConstraint("run_id", "key"),
+        CheckConstraint(_in("status", RUN_TASK_STATUSES), name="status"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id", ondelete="CASCADE"))
+    key: Mapped[str] = mapped_column(String(40))
+    kind: Mapped[str] = mapped_column(String(12))
+    status: Mapped[str] = mapped_column(String(12), default="queued")
+    trace_start: Mapped[int | None] = mapped_column(Integer)
+    trace_stop: Mapped[int | None] = mapped_column(Integer)
+    progress_done: Mapped[int] = mapped_column(Integer, default=0)
+    progress_total: Mapped[int] = mapped_column(Integer, default=0)
+    deliveries: Mapped[int] = mapped_column(Integer, default=0)
+    task_id: Mapped[str | None] = mapped_column(String(64))
+    worker: Mapped[str | None] = mapped_column(String(255))
+    host: Mapped[str | None] = mapped_column(String(255))
+    pid: Mapped[int | None] = mapped_column(Integer)
+    sent_at: Mapped[datetime | None]
+    started_at: Mapped[datetime | None]
+    heartbeat_at: Mapped[datetime | None]
+    finished_at: Mapped[datetime | None]
+    error: Mapped[str | None] = mapped_column(Text)
+    result: Mapped[dict[str, Any] | None] = mapped_column(JSON)
+
+
+class RunEvent(Base):
+    """One line of a run's log."""
+
+    __tablename__ = "run_events"
+    __table_args__ = (Index("ix_run_events_run_id_id", "run_id", "id"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id", ondelete="CASCADE"))
+    at: Mapped[datetime]
+    level: Mapped[str] = mapped_column(String(8), default="info")
+    message: Mapped[str] = mapped_column(Text)
