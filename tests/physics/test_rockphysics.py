@@ -9,6 +9,7 @@ import math
 import numpy as np
 import pytest
 
+from porecast.physics import rockphysics
 from porecast.physics.rockphysics import (
     MINERALS,
     Moduli,
@@ -474,3 +475,16 @@ def test_models_broadcast():
     np.testing.assert_allclose(
         k_each.k[2, 1], friable_sand(QUARTZ.k, QUARTZ.g, phi[2, 0], PHIC, N, 15.0).k
     )
+
+
+def test_hashin_shtrikman_upper_dry_equals_the_general_bound():
+    # Independent route: the n-phase bound of this module with a void phase.
+    rng = np.random.default_rng(11)
+    k = rng.uniform(20, 80, 200)
+    g = rng.uniform(5, 45, 200)
+    phi = rng.uniform(0, 0.5, 200)
+    up = rockphysics.hashin_shtrikman_upper_dry(k, g, phi)
+    ref = rockphysics.hashin_shtrikman_bounds(
+        np.stack([1 - phi, phi], -1), np.stack([k, 0 * k], -1), np.stack([g, 0 * g], -1))
+    np.testing.assert_allclose(up.k, ref.k_upper, rtol=1e-12)
+    np.testing.assert_allclose(up.g, ref.g_upper, rtol=1e-12)

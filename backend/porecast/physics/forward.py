@@ -898,12 +898,8 @@ def _sand_dry(
     # near zero) can overshoot what any frame of this mineral can reach; no dry
     # frame is stiffer than the Hashin-Shtrikman upper bound of mineral and
     # empty pores (RPH section 4.1), so the frame is held at that bound.
-    hs = rockphysics.hashin_shtrikman_bounds(
-        np.stack([1.0 - phi, phi]).T,
-        np.stack([m.k, np.zeros(phi.shape)]).T,
-        np.stack([m.g, np.zeros(phi.shape)]).T,
-    )
-    return np.minimum(k, hs.k_upper), np.minimum(g, hs.g_upper)
+    k_up, g_up = rockphysics.hashin_shtrikman_upper_dry(m.k, m.g, phi)
+    return np.minimum(k, k_up), np.minimum(g, g_up)
 
 
 def _at_age(ages: FloatArray, values: FloatArray, age: FloatArray) -> FloatArray:

@@ -384,6 +384,39 @@ def hashin_shtrikman_bounds(
 # --------------------------------------------------------------------------- fluid substitution
 
 
+def hashin_shtrikman_upper_dry(
+    k_mineral: ArrayLike, g_mineral: ArrayLike, porosity: ArrayLike
+) -> Moduli:
+    """Hashin-Shtrikman upper bound of a mineral with empty (dry) pores.
+
+    The two-phase upper bound with the void as second phase (RPH section 4.1)::
+
+        K+ = K + phi / (-1/K + (1 - phi) / (K + 4/3 G))
+        G+ = G + phi / (-1/G + 2 (1 - phi)(K + 2G) / (5 G (K + 4/3 G)))
+
+    No dry frame of this mineral is stiffer.
+
+    Parameters
+    ----------
+    k_mineral, g_mineral : array_like
+        Mineral bulk and shear modulus, GPa (> 0).
+    porosity : array_like
+        Porosity, fraction (0 to 1).
+
+    Returns
+    -------
+    Moduli
+        Upper-bound dry bulk and shear modulus, GPa.
+    """
+    k = in_range("k_mineral", k_mineral, 0.0, low_open=True, unit="GPa")
+    g = in_range("g_mineral", g_mineral, 0.0, low_open=True, unit="GPa")
+    phi = in_range("porosity", porosity, 0.0, 1.0)
+    m = k + 4.0 / 3.0 * g
+    k_up = k + phi / (-1.0 / k + (1.0 - phi) / m)
+    g_up = g + phi / (-1.0 / g + 2.0 * (1.0 - phi) * (k + 2.0 * g) / (5.0 * g * m))
+    return Moduli(k_up, g_up)
+
+
 def gassmann(
     k_dry: ArrayLike,
     g_dry: ArrayLike,
