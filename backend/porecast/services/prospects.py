@@ -11,6 +11,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from porecast.db.models import Prospect, User
+from porecast.physics.risk import polygon_vertices, shoelace_area
 
 from . import activity
 from .authz import load_in_project, require_project
@@ -23,48 +24,10 @@ def _bad(msg: str) -> InvalidInput:
     return InvalidInput(f"outline: {msg}", [{"loc": "outline", "msg": msg}])
 
 
-def shoelace_area(xy: np.ndarray) -> float:
-    """Area of a simple polygon (m2) by the shoelace (surveyor's) formula."""
-    x, y = xy[:, 0], xy[:, 1]
-    return 0.5 * abs(float(np.dot(x, np.roll(y, -1)) - np.dot(y, np.roll(x, -1))))
-
-
-def _self_intersects(xy: np.ndarray) -> bool:
-    """Whether any two non-adjacent edges of the closed polygon touch or cross."""
-    a = xy
-    b = np.roll(xy, -1, axis=0)
-    n = len(xy)
-
-    def orient(p: np.ndarray, q: np.ndarray, r: np.ndarray) -> np.ndarray:
-        return np.sign(
-            (q[..., 0] - p[..., 0]) * (r[..., 1] - p[..., 1])
-            - (q[..., 1] - p[..., 1]) * (r[..., 0] - p[..., 0])
-        )
-
-    i, j = np.triu_indices(n, k=2)
-    keep = ~((i == 0) & (j == n - 1))  # first and last edges share a vertex
-    i, j = i[keep], j[keep]
-    if i.size == 0:
-        return False
-    p1, q1, p2, q2 = a[i], b[i], a[j], b[j]
-    o1, o2 = orient(p1, q1, p2), orient(p1, q1, q2)
-    o3, o4 = orient(p2, q2, p1), orient(p2, q2, q1)
-    crossing = (o1 * o2 < 0) & (o3 * o4 < 0)
-
-    def on_segment(p: np.ndarray, q: np.ndarray, r: np.ndarray, o: np.ndarray) -> np.ndarray:
-        lo, hi = np.minimum(p, q), np.maximum(p, q)
-        inside = (lo[:, 0] <= r[:, 0]) & (r[:, 0] <= hi[:, 0]) & (lo[:, 1] <= r[:, 1])
-        return (o == 0) & inside & (r[:, 1] <= hi[:, 1])
-
-    touching = (
-        on_segment(p1, q1, p2, o1) | on_segment(p1, q1, q2, o2)
-        | on_segment(p2, q2, p1, o3) | on_segment(p2, q2, q1, o4)
-    )
-    return bool(np.any(crossing | touching))
-
-
 def validate_outline(outline: Any) -> list[list[float]]:
     """Check an outline and return it without a repeated closing vertex.
+
+    ``shoelace_area`` is re-exported from :mod:`porecast.physics.risk`.
 
     Needs at least 3 distinct vertices, finite coordinates, a non-zero area and
     no self-intersection.
@@ -90,11 +53,12 @@ def validate_outline(outline: Any) -> list[list[float]]:
         raise _bad(f"at most {MAX_VERTICES} vertices")
     if any(pts[k] == pts[k + 1] for k in range(len(pts) - 1)):
         raise _bad("consecutive vertices must differ")
-    xy = np.asarray(pts)
-    if shoelace_area(xy) <= 0:
-        raise _bad("the polygon has zero area")
-    if _self_intersects(xy):
-        raise _bad("the outline crosses or touches itself")
+    # One place for polygon rules: the risk module refuses repeated vertices and
+    # edges that cross or touch (which also covers zero-area outlines).
+    try:
+        polygon_vertices(pts)
+    except ValueError as exc:
+        raise _bad(f"the outline crosses or touches itself ({exc})") from None
     return pts
 
 
