@@ -73,10 +73,11 @@ def sample(kind: str, params: dict[str, float], rng: np.random.Generator, size: 
         mean, sd = params["mean"], params["sd"]
         a = (params["low"] - mean) / sd
         b = (params["high"] - mean) / sd
-        # Inverse-CDF sampling; scipy's ndtri keeps it vectorised and exact.
+        # Inverse-CDF sampling from one uniform per value (so a stream can be
+        # skipped by advancing the generator; see skip()).
         lo, hi = special.ndtr(a), special.ndtr(b)
         u = rng.uniform(lo, hi, size)
-        return mean + sd * special.ndtri(u)
+        return truncated_normal_from_uniform(u, mean, sd, params["low"], params["high"])
     if kind == "uniform":
         return rng.uniform(params["low"], params["high"], size)
     if kind == "triangular":
@@ -86,6 +87,71 @@ def sample(kind: str, params: dict[str, float], rng: np.random.Generator, size: 
     if kind == "lognormal":
         return rng.lognormal(np.log(params["median"]), params["sd_log"], size)
     raise ValueError(f"distribution kind must be one of {', '.join(KINDS)} (got {kind!r})")
+
+
+# Inverse normal CDF for sampling: Acklam's (2003) rational approximation, compiled
+# with numba on first use. Measured here on 10^6 values: scipy.special.ndtri 15-35 ns
+# per value, this 3.8 ns; the truncated normal inputs were the largest single cost of
+# drawing a scenario's inputs (6 of 18 inputs in the bundled example). Its relative
+# error is at most 1.15e-9 (Acklam's figure; 1.13e-9 measured against ndtri in
+# tests/physics/test_distributions.py), far below anything a Monte Carlo draw can see;
+# the result is clipped to [low, high] so rounding never leaves the support.
+_ACKLAM_A = (-3.969683028665376e01, 2.209460984245205e02, -2.759285104469687e02,
+             1.383577518672690e02, -3.066479806614716e01, 2.506628277459239e00)
+_ACKLAM_B = (-5.447609879822406e01, 1.615858368580409e02, -1.556989798598866e02,
+             6.680131188771972e01, -1.328068155288572e01)
+_ACKLAM_C = (-7.784894002430293e-03, -3.223964580411365e-01, -2.400758277161838e00,
+             -2.549732539343734e00, 4.374664141464968e00, 2.938163982698783e00)
+_ACKLAM_D = (7.784695709041462e-03, 3.224671290700398e-01, 2.445134137142996e00,
+             3.754408661907416e00)
+_ACKLAM_SPLIT = 0.02425  # below this (and above 1 - it) the tail approximation is used
+
+
+def _truncated_normal_kernel(u, mean, sd, low, high, out):  # pragma: no cover - numba
+    a0, a1, a2, a3, a4, a5 = _ACKLAM_A
+    b0, b1, b2, b3, b4 = _ACKLAM_B
+    c0, c1, c2, c3, c4, c5 = _ACKLAM_C
+    d0, d1, d2, d3 = _ACKLAM_D
+    for i in range(u.size):
+        p = u[i]
+        if p < _ACKLAM_SPLIT or p > 1.0 - _ACKLAM_SPLIT:
+            tail = p if p < 0.5 else 1.0 - p
+            q = np.sqrt(-2.0 * np.log(tail))
+            x = (((((c0 * q + c1) * q + c2) * q + c3) * q + c4) * q + c5) / (
+                (((d0 * q + d1) * q + d2) * q + d3) * q + 1.0)
+            x = x if p < 0.5 else -x
+        else:
+            q = p - 0.5
+            r = q * q
+            x = (((((a0 * r + a1) * r + a2) * r + a3) * r + a4) * r + a5) * q / (
+                ((((b0 * r + b1) * r + b2) * r + b3) * r + b4) * r + 1.0)
+        v = mean + sd * x
+        v = low if v < low else v
+        out[i] = high if v > high else v
+
+
+_compiled: dict[str, object] = {}
+
+
+def truncated_normal_from_uniform(
+    u: FloatArray, mean: float, sd: float, low: float, high: float
+) -> FloatArray:
+    """``mean + sd * Phi^-1(u)`` clipped to [low, high], for u in (0, 1).
+
+    The inverse-CDF step of truncated-normal sampling (``u`` uniform between
+    Phi((low - mean) / sd) and Phi((high - mean) / sd)); relative error of the
+    quantile at most 1.15e-9 (Acklam 2003).
+    """
+    kernel = _compiled.get("truncated_normal")
+    if kernel is None:
+        import numba  # imported on first use: importing the physics stays fast
+
+        kernel = _compiled["truncated_normal"] = numba.njit(
+            cache=True, nogil=True, boundscheck=False)(_truncated_normal_kernel)
+    uu = np.ascontiguousarray(u, dtype=np.float64)
+    out = np.empty_like(uu)
+    kernel(uu.ravel(), float(mean), float(sd), float(low), float(high), out.ravel())
+    return out
 
 
 #: Kinds whose sampler turns each value into exactly one 64-bit output of the
