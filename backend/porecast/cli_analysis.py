@@ -1,4 +1,4 @@
-"""``porecast classify`` and ``porecast calibrate`` sub-commands."""
+"""``porecast classify``, ``porecast calibrate`` and ``porecast sensitivity`` sub-commands."""
 
 from __future__ import annotations
 
@@ -7,6 +7,7 @@ import json
 import shutil
 import tempfile
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -15,6 +16,7 @@ from .io import GridData, atomic_path, write_npz
 from .physics import forward, risk
 from .services import calibration as calibration_service
 from .services import classification as cls
+from .services import sensitivity as sensitivity_service
 from .services.simulation import load
 
 
@@ -195,8 +197,58 @@ def _cmd_calibrate(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_sensitivity(args: argparse.Namespace) -> int:
+    from .cli import ProgressBar
+
+    sc, _ = load(args.scenario)
+    prospects = _read_prospects(args.prospects)
+    # What the maps must supply: the scenario's attributes and its varying covariates.
+    node_axes, _ = forward.covariate_grid(sc)
+    probe = SimpleNamespace(attributes=tuple(sc.rockphysics.seismic.attributes),
+                            axes=tuple(c for c, v in node_axes.items() if len(v) > 1))
+    grid, values = cls.map_attributes(probe, _pairs(args.attributes, "attribute"))
+    covs = cls.covariate_maps(probe, _pairs(args.covariate, "covariate"), grid.shape,
+                              "the attribute maps")
+    bar = ProgressBar("sensitivity", enabled=not args.quiet)
+    try:
+        doc = sensitivity_service.prospect_sensitivity(
+            sc, values, grid, covs, prospects, realisations=args.realisations,
+            low_q=args.low_quantile, high_q=args.high_quantile, fix_others=args.fix_others,
+            correlation_length_m=args.correlation_length,
+            progress=lambda d, t, label: bar(d, t, label))
+    finally:
+        bar.close()
+    doc.update(kind="porecast.sensitivity", scenario=sc.name, seed=sc.seed,
+               caution="Screening estimates for exploration decisions; not for well design, "
+               "drilling or well control.")
+    out = Path(args.out)
+    out.mkdir(parents=True, exist_ok=True)
+    with atomic_path(out / "tornado.html") as tmp:
+        sensitivity_service.tornado_figure(doc).write_html(tmp, include_plotlyjs=True,
+                                                           full_html=True)
+    _write_json(out / "sensitivity.json", doc)
+    if not args.quiet:
+        for name, per in doc["tornado"].items():
+            for outcome, label, scale in (("probability_hc", "P(hydrocarbon)", ""),
+                                          ("expected_area_km2", "expected hc area", " km2")):
+                t = per[outcome]
+                print(f"{name}: {label} {t['base']:.3f}{scale} at base; largest swings:")
+                for s in t["swings"][:5]:
+                    print(f"  {s['path']:<52s} {s['outcome_low']:.3f} .. "
+                          f"{s['outcome_high']:.3f}{scale}")
+        for facies, entry in doc["indices"].items():
+            if "indices" not in entry:
+                print(f"{facies}: no first-order indices ({entry['note']})")
+                continue
+            print(f"{facies}: first-order indices of P(hydrocarbon) over "
+                  f"{entry['n_samples']} realisations (mean {entry['mean_probability_hc']:.3f}):")
+            for path, e in list(entry["indices"].items())[:5]:
+                print(f"  {path:<52s} {e['value']:.3f} +/- {e['standard_error']:.3f}")
+    return 0
+
+
 def add_analysis_commands(sub: argparse._SubParsersAction) -> None:
-    """Register ``classify`` and ``calibrate``."""
+    """Register ``classify``, ``calibrate`` and ``sensitivity``."""
     p = sub.add_parser("classify", help="facies probabilities of attribute maps or cubes")
     p.add_argument("scenario", help="scenario JSON file")
     p.add_argument("--attributes", nargs="+", required=True, metavar="[NAME=]FILE",
@@ -229,3 +281,25 @@ def add_analysis_commands(sub: argparse._SubParsersAction) -> None:
     c.add_argument("--out", required=True, help="output folder")
     c.add_argument("--quiet", action="store_true")
     c.set_defaults(handler=_cmd_calibrate)
+
+    s = sub.add_parser("sensitivity",
+                       help="which uncertain input moves each prospect's risk numbers most")
+    s.add_argument("scenario", help="scenario JSON file")
+    s.add_argument("--attributes", nargs="+", required=True, metavar="[NAME=]FILE",
+                   help="attribute maps, as for classify")
+    s.add_argument("--covariate", action="append", metavar="NAME=FILE",
+                   help="covariate map, as for classify")
+    s.add_argument("--prospects", required=True, help="JSON list of prospect outlines")
+    s.add_argument("--low-quantile", type=float, default=0.1,
+                   help="quantile of each input for its low swing (default 0.1)")
+    s.add_argument("--high-quantile", type=float, default=0.9,
+                   help="quantile of each input for its high swing (default 0.9)")
+    s.add_argument("--fix-others", choices=("mean", "median"), default=None,
+                   help="fix the inputs not being swung (default: leave them uncertain)")
+    s.add_argument("--correlation-length", type=float, default=None, metavar="M",
+                   help="spatial correlation length of the p-field risk simulation, m")
+    s.add_argument("--realisations", type=int, default=None,
+                   help="realisations per facies and node in each evaluation")
+    s.add_argument("--out", required=True, help="output folder")
+    s.add_argument("--quiet", action="store_true")
+    s.set_defaults(handler=_cmd_sensitivity)

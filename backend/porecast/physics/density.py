@@ -336,7 +336,14 @@ def _cholesky_or_raise(cov: FloatArray, name: str) -> FloatArray:
 
 
 def _whiten(centred: FloatArray, chol: FloatArray) -> FloatArray:
-    """Rows of ``L^-1 (x - m)`` for lower-triangular L."""
-    from scipy.linalg import solve_triangular
+    """Rows of ``L^-1 (x - m)`` for lower-triangular L, by forward substitution.
 
-    return solve_triangular(chol, centred.T, lower=True).T
+    One column at a time in numpy (d is a handful of attributes). scipy's
+    solve_triangular took 6.7 ms per call on (100, 2) samples on a busy 2-core
+    machine (LAPACK's threaded triangular solve waiting for a core), which made the
+    fit tests 95 % of training a scenario's PDFs; this loop takes microseconds.
+    """
+    z = np.empty_like(centred)
+    for a in range(chol.shape[0]):
+        z[:, a] = (centred[:, a] - z[:, :a] @ chol[a, :a]) / chol[a, a]
+    return z

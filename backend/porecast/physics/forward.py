@@ -142,6 +142,10 @@ class ForwardResult(NamedTuple):
     """Attribute samples with noise, shape (n_nodes, n_facies, n_realisations, n_attributes)."""
     fields: dict[str, FloatArray]
     """Every intermediate (noise-free), name -> (n_nodes, n_facies, n_realisations)."""
+    inputs: dict[str, FloatArray] = {}
+    """With ``simulate(keep_inputs=True)``: the drawn value of every uncertain input,
+    stream path -> (n_nodes, n_facies, n_realisations), NaN where a facies does not
+    read that input (e.g. oil gravity in a gas sand); empty otherwise."""
 
     @property
     def grid_shape(self) -> tuple[int, ...]:
@@ -279,6 +283,7 @@ def simulate(
     overrides: dict[str, float] | None = None,
     progress: Progress | None = None,
     chunk_size: int | None = None,
+    keep_inputs: bool = False,
 ) -> ForwardResult:
     """Run the Monte Carlo forward model of a scenario.
 
@@ -300,6 +305,10 @@ def simulate(
         Realisations per chunk of the deterministic chain (default
         :data:`CHUNK_SIZE`); a tuning knob for speed and memory only, the
         results do not depend on it.
+    keep_inputs : bool
+        Also return the drawn value of every uncertain input per realisation
+        (:attr:`ForwardResult.inputs`, for variance-based sensitivity from the
+        sample); costs one full-size array per input.
 
     Returns
     -------
@@ -317,7 +326,8 @@ def simulate(
         raise ValueError(f"chunk_size must be at least 1 (got {chunk_size})")
     step = _Stepper(progress, _STAGES)
     try:
-        return _simulate(scenario, realisations, node_values, overrides, step, chunk)
+        return _simulate(scenario, realisations, node_values, overrides, step, chunk,
+                         keep_inputs)
     except _StageFailure as failure:
         stage, exc = failure.stage, failure.error
     except ValueError as error:
@@ -347,6 +357,7 @@ def _simulate(
     overrides: dict[str, float] | None,
     step: _Stepper,
     chunk: int,
+    keep_inputs: bool = False,
 ) -> ForwardResult:
     n = int(realisations or scenario.realisations)
     if n < 2:
@@ -370,6 +381,7 @@ def _simulate(
     # Outputs are allocated once at full size and filled chunk by chunk.
     fields = {name: np.empty(shape) for name in FIELDS}
     samples = np.empty(shape + (len(names),))
+    kept: dict[str, FloatArray] = {}
     windows = _windows(n_nodes, len(facies), n, chunk)
     step.total = sum(f.stop - f.start for _, f, _ in windows) * len(_STAGES)
     chain = _Chain(scenario)
@@ -385,7 +397,7 @@ def _simulate(
         for jj, j in enumerate(range(fac_range.start, fac_range.stop)):
             step.start_chunk()
             try:
-                out = chain(j, window.reader(jj), base, step)
+                out = chain(j, window.reader(jj, j), base, step)
             except _StopChunk:
                 continue
             except ValueError as exc:
@@ -407,6 +419,14 @@ def _simulate(
                     target[...] = fields[name][part]
                 else:
                     np.add(fields[name][part], eps[a].reshape(dims)[:, jj, :], out=target)
+        if keep_inputs:
+            for path, values in window.drawn.items():
+                if path not in kept:
+                    kept[path] = np.full(shape, np.nan)
+                read = window.read_by.get(path, set())
+                for jj, j in enumerate(range(fac_range.start, fac_range.stop)):
+                    if j in read:
+                        kept[path][rows, j, cols] = values[:, jj, :]
         window.skip_unread()
     if failure is not None:
         raise _StageFailure(_STAGES[failure[0]], failure[1])
@@ -417,6 +437,7 @@ def _simulate(
         node_values=grid,
         samples=samples,
         fields=fields,
+        inputs=kept,
     )
 
 
@@ -529,14 +550,18 @@ class _WindowInputs:
         self.draw, self.inputs, self.dims = draw, inputs, dims
         self.count = dims[0] * dims[1] * dims[2]
         self.drawn: dict[str, FloatArray] = {}
+        # path -> facies indices of the run (not of the window) that read it
+        self.read_by: dict[str, set[int]] = {}
 
-    def reader(self, facies: int) -> Callable[[str], FloatArray]:
+    def reader(self, facies: int, run_facies: int | None = None) -> Callable[[str], FloatArray]:
         """``read(key)`` of the window's ``facies``-th facies: flat values of that input."""
 
         def read(key: str) -> FloatArray:
             path, dist = self.inputs[key]
             if path not in self.drawn:
                 self.drawn[path] = self.draw(path, dist, self.count).reshape(self.dims)
+            self.read_by.setdefault(path, set()).add(facies if run_facies is None
+                                                      else run_facies)
             return self.drawn[path][:, facies, :].reshape(-1)
 
         return read
