@@ -164,3 +164,52 @@ def classified_run(world: world_module.World) -> dict[str, Any]:
         run = client.get(f"/api/runs/{run['id']}").json()
     assert run["status"] == "succeeded", run
     return run
+
+
+def _run_to_end(client: Any, scenario_id: int, body: dict[str, Any],
+                timeout_s: float = 150.0) -> dict[str, Any]:
+    """Start a run through the API and poll it until it has finished; it must succeed."""
+    import time
+
+    if "/api/scenarios/{scenario_id}/runs" not in client.get("/openapi.json").json()["paths"]:
+        pytest.xfail("the run API (POST /api/scenarios/{id}/runs) is not in this build yet")
+    r = client.post(f"/api/scenarios/{scenario_id}/runs", json=body)
+    assert r.status_code == 202, r.text
+    run = r.json()
+    deadline = time.monotonic() + timeout_s
+    while run["status"] in ("queued", "running") and time.monotonic() < deadline:
+        time.sleep(0.5)
+        run = client.get(f"/api/runs/{run['id']}").json()
+    assert run["status"] == "succeeded", run
+    return run
+
+
+@pytest.fixture(scope="session")
+def cube_run(world: world_module.World) -> dict[str, Any]:
+    """A finished classification of the invented SEG-Y cubes (two tiles of traces)."""
+    g = world.cube_grid_ids
+    client = world_module.login(world.base_url, "owner1")
+    try:
+        return _run_to_end(client, world.scenario_id, {
+            "kind": "classify", "override_readiness": True,
+            "params": {"attribute_grids": {"intercept": g["intercept"], "gradient": g["gradient"]},
+                       "covariate_grids": {c: g[c] for c in world_module.COVARIATE_MAPS},
+                       "tile_traces": 48}})
+    finally:
+        client.close()
+
+
+@pytest.fixture(scope="session")
+def calibrate_run(world: world_module.World) -> dict[str, Any]:
+    """A finished blind test at the first invented well, with the map covariates there."""
+    client = world_module.login(world.base_url, "owner1")
+    well = client.get(f"/api/wells/{world.well_ids[0]}").json()
+    covs = world_module.covariates_at(well["x"], well["y"])
+    try:
+        return _run_to_end(client, world.scenario_id, {
+            "kind": "calibrate", "override_readiness": True,
+            "params": {"well_id": world.well_ids[0], "block_m": 10.0,
+                       "covariates": {c: round(float(covs[c]), 1)
+                                      for c in ("net_uplift_m", "gradient_c_per_km")}}})
+    finally:
+        client.close()
