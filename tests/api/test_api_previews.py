@@ -239,6 +239,25 @@ def test_stage_failure_is_a_422_naming_the_stage(team, scenario):
     assert "fluids" in r.json()["detail"]
 
 
+def test_default_depth_trend_stays_inside_the_fluid_range_on_a_hot_location(team, scenario):
+    # A hot location (43 degC/km, the example's gradient uncertainty sd 1.5 degC/km):
+    # the default sweep must stop where the hottest realisation is still below the
+    # 150 degC limit of Batzle & Wang (1992). Hand calculation of the limit:
+    # (145 - Ts) / (43 + 4 x 1.5) km - (4 x sd of the depth uncertainty).
+    doc = default_scenario()
+    covs = doc["burial"]["covariates"]
+    ts = doc["burial"]["surface_temperature_c"]
+    z_unc = covs["present_depth_m"]["uncertainty"]
+    z_hi = 4.0 * z_unc["sd"] if isinstance(z_unc, dict) and "sd" in z_unc else 0.0
+    expected = (145.0 - ts) / (43.0 + 4.0 * 1.5) * 1000.0 - z_hi
+    hot = {**LOCATION, "gradient_c_per_km": 43.0}
+    r = _preview(team["geophysicist"], scenario["id"], locations=[hot], parts=["depth_trend"],
+                 realisations=200)
+    assert r.status_code == 200, r.text
+    depths = r.json()["depth_trend"]["depth_m"]
+    assert depths[-1] == pytest.approx(expected, abs=0.01)  # depths are sent to 0.01 m
+
+
 def test_validate_reports_problems_without_saving(team, scenario):
     client, sid = team["geologist"], scenario["id"]
     geology = client.get(f"/api/scenarios/{sid}/sections/geology").json()["data"]

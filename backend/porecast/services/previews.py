@@ -355,17 +355,27 @@ def _simulate(sc: Scenario, nodes: np.ndarray, n: int) -> forward.ForwardResult:
     return forward.simulate(sc, realisations=n, node_values=nodes)
 
 
-#: Present temperature the default depth sweep stays below, degC: the
-#: Batzle & Wang (1992) fluid correlations are fitted up to about 150 degC and
-#: the covariate uncertainties spread the temperature around the node value.
-DEPTH_SWEEP_MAX_TEMPERATURE_C = 130.0
+#: Present temperature the default depth sweep stays below, degC, for the hottest
+#: realisation (location gradient plus the top of its uncertainty, deepest depth
+#: draw): the Batzle & Wang (1992) fluid correlations are fitted up to 150 degC.
+DEPTH_SWEEP_MAX_TEMPERATURE_C = 145.0
 
 
 def default_depth_limit(sc: Scenario, row: np.ndarray) -> float:
     """Deepest present depth of the default sweep, m: 4500 m or shallower, so that the
-    present temperature at the location's gradient stays below 130 degC."""
+    hottest realisation's present temperature stays below 145 degC.
+
+    The hottest realisation takes the location's gradient plus the upper end of the
+    gradient uncertainty and the deepest present-depth draw (the supports of
+    :func:`porecast.physics.distributions.support`; mean + 4 sd for a normal law).
+    """
     ts = sc.burial.surface_temperature_c
-    limit = (DEPTH_SWEEP_MAX_TEMPERATURE_C - ts) / row[2] * 1000.0
+    covs = sc.burial.covariates
+    g_unc = covs.gradient_c_per_km.uncertainty
+    z_unc = covs.present_depth_m.uncertainty
+    g_hi = row[2] + max(0.0, distributions.support(g_unc.kind, dist_params(g_unc)).high)
+    z_hi = max(0.0, distributions.support(z_unc.kind, dist_params(z_unc)).high)
+    limit = (DEPTH_SWEEP_MAX_TEMPERATURE_C - ts) / g_hi * 1000.0 - z_hi
     return float(min(4500.0, max(600.0, limit)))
 
 
