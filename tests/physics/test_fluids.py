@@ -151,7 +151,11 @@ def test_gas_density_and_isothermal_modulus_match_coolprop_methane():
     # gravity 0.554. K_T = 1 / isothermal_compressibility.
     # Measured: density -1.4 % .. +0.8 % (tolerance 2 %); K_T -4.4 % .. +2.6 %.
     # K_T is a derivative of B&W's Z fit, which roughly triples the fit error,
-    # so 1 % cannot hold anywhere in this range; 5 % sits above the measurement.
+    # so 1 % cannot hold over this range (it fails already at 5 MPa: -1.6 %);
+    # 5 % sits above the measurement. Another Standing-Katz fit does no better:
+    # Dranchuk & Abou-Kassem (1975) Z (constants from memory) with B&W's
+    # pseudo-critical point gave K_T -1.0 % .. +4.5 % on this grid (measured once,
+    # not kept in the code).
     temps, pressures, ref = _methane_grid()
     t, p = temps[:, None], pressures[None, :]
     rel_rho = gas(t, p, METHANE_GRAVITY).density / (ref[..., 0] / 1000.0) - 1.0
