@@ -23,6 +23,7 @@ import numpy as np
 from scipy.integrate import solve_ivp
 from threadpoolctl import threadpool_limits
 
+from porecast.cli import small_pages_for_large_arrays
 from porecast.physics import diagenesis, forward
 from porecast.physics.scenario import default_scenario, validate_scenario
 
@@ -75,9 +76,14 @@ def main() -> None:
     parser.add_argument("--n", type=int, default=1_000_000, help="total realisations")
     parser.add_argument("--repeat", type=int, default=3,
                         help="timed repetitions after the first run (best is reported)")
+    parser.add_argument("--huge-pages", action="store_true",
+                        help="keep numpy's transparent-huge-page advice (the porecast "
+                        "command turns it off; see porecast.cli.small_pages_for_large_arrays)")
     parser.add_argument("--loop", type=int, default=100,
                         help="realisations for the one-at-a-time solve_ivp run")
     args = parser.parse_args()
+    if not args.huge_pages:
+        small_pages_for_large_arrays()  # as the porecast command does
     sc = single_node_scenario()
     n_fac = len(sc.geology.facies)
     per_facies = max(2, args.n // n_fac)
