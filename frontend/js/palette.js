@@ -88,6 +88,17 @@ export const UI = Object.freeze({
   pin: "#9c2f2c",
 });
 
+// Tornado charts of a sensitivity run: the bar of an input at its low value and at its
+// high value. Blue and vermillion of the Okabe & Ito set above (a pair that stays apart
+// for every common colour-vision deficiency), the same pair as the tornado.html report
+// of backend/porecast/services/sensitivity.py (SWING_COLOURS); the base case is a line
+// in the interface ink.
+export const SWING = Object.freeze({
+  low: OKABE_ITO.blue,
+  high: OKABE_ITO.vermillion,
+  base: UI.ink,
+});
+
 // Scenario colours in manager charts (a second set, so that scenarios are never
 // mistaken for facies): Paul Tol's "bright" qualitative scheme, also CVD-safe
 // (P. Tol, "Colour Schemes", SRON technical note SRON/EPS/TN/09-002, issue 3.2, 2021).

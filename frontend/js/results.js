@@ -1,13 +1,14 @@
 // Results of a run: facies maps with hover read-outs and prospect outlines, a section
-// through the cube, logs beside predicted facies at a well, the blind-test matrix.
+// through the cube, logs beside predicted facies at a well, the blind-test matrix, and the
+// tornado charts and first-order indices of a sensitivity run.
 
 import { api, ApiError } from "./api.js";
 import { startPage, setCrumbs, h, param, fmt, fmtTime, fmtBytes, toast, errorText, cautionBox, unitLabel } from "./shell.js";
 import { draw, axis, layout, loadPlotly } from "./plots.js";
-import { faciesColours, categoricalScale, SCALES, UI } from "./palette.js";
+import { faciesColours, categoricalScale, SCALES, SWING, UI } from "./palette.js";
 import { Comments } from "./comments.js";
 import { etaText, statusChip } from "./runs.js";
-import { COVARIATES, covariateLabel, covariateUnit } from "./fields.js";
+import { COVARIATES, SECTION_SPECS, covariateLabel, covariateUnit } from "./fields.js";
 
 const runId = Number(param("run"));
 await startPage([["Projects", "/projects.html"], [`Run #${runId}`]]);
@@ -21,7 +22,8 @@ const succeeded = run.status === "succeeded";
 /** "map", "cube" or null: what a classify run classified. */
 const input = run.kind === "classify" ? (result.input || null) : null;
 const KIND_LABELS = { classify: input === "cube" ? "cube classification" : "map classification",
-  simulate: "forward model", calibrate: "blind test at a well", summarise: "risk summary" };
+  simulate: "forward model", calibrate: "blind test at a well", summarise: "risk summary",
+  sensitivity: "sensitivity of prospect risk" };
 
 setCrumbs([["Projects", "/projects.html"], [project.name, `/project.html?id=${project.id}`],
   [scenario.name, `/scenario.html?id=${scenario.id}`], [`Run #${runId}`]]);
@@ -443,6 +445,206 @@ async function drawWell(w) {
     ...(w.notes || []).map((t) => h("p", { class: "small faint" }, t)));
 }
 
+// ---------------------------------------------------------------- sensitivity: tornado charts, first-order indices
+
+const OUTCOMES = {
+  probability_hc: { name: "Probability of hydrocarbon", short: "P(hc)" },
+  expected_area_km2: { name: "Expected hydrocarbon area", short: "expected hc area" },
+};
+/** Bars per chart at most; smaller swings are counted below the chart. */
+const MAX_BARS = 12;
+
+/** Field specs of the workspace forms by full scenario path (labels and units of the inputs). */
+const INPUT_SPECS = Object.fromEntries(Object.entries(SECTION_SPECS).flatMap(([section, groups]) =>
+  groups.flatMap((g) => (g.fields || []).filter((f) => f.type === "dist").map((f) => [`${section}.${f.path}`, f]))));
+const INPUT_GROUPS = [["geology.sand.", "Reservoir sand"], ["geology.cap_rock.", "Cap rock"]];
+const lowerFirst = (text) => (/^[A-Z][a-z]/.test(text) && !/^Athy\b/.test(text) ? text[0].toLowerCase() + text.slice(1) : text);
+
+/** Plain-word label and unit of an uncertain input path of a sensitivity run. */
+function inputInfo(path, facies = []) {
+  let m = /^burial: (\w+)$/.exec(path); // first-order indices: a realisation's own burial value
+  if (m && COVARIATES.includes(m[1])) return { label: covariateLabel(m[1]), unit: covariateUnit(m[1]) };
+  m = /^burial\.covariates\.(\w+)\.uncertainty$/.exec(path);
+  if (m && COVARIATES.includes(m[1])) return { label: `${covariateLabel(m[1])}: uncertainty`, unit: covariateUnit(m[1]) };
+  m = /^geology\.facies\.(\d+)\.sand\.(\w+)$/.exec(path);
+  if (m && INPUT_SPECS[`geology.sand.${m[2]}`]) {
+    const f = INPUT_SPECS[`geology.sand.${m[2]}`];
+    return { label: `${facies[Number(m[1])] || `facies ${Number(m[1]) + 1}`}: ${lowerFirst(f.label)}`, unit: f.unit };
+  }
+  const spec = INPUT_SPECS[path];
+  if (spec) {
+    const group = INPUT_GROUPS.find(([prefix]) => path.startsWith(prefix));
+    return { label: group ? `${group[1]}: ${lowerFirst(spec.label)}` : spec.label, unit: spec.unit };
+  }
+  const last = path.split(".").filter((p) => p !== "uncertainty").pop() || path;
+  return { label: last.replace(/_/g, " "), unit: "" };
+}
+
+/** "10th", "90th", "2.5th" percentile of a quantile. */
+function percentile(q) {
+  const p = Number((100 * q).toPrecision(4));
+  const suffix = Number.isInteger(p) && ![11, 12, 13].includes(p % 100) ? ({ 1: "st", 2: "nd", 3: "rd" }[p % 10] || "th") : "th";
+  return `${p}${suffix}`;
+}
+
+/** The swings a chart shows: inputs that move the outcome at all, largest first, at most MAX_BARS. */
+function shownSwings(t) {
+  const moving = t.swings.filter((s) => s.outcome_low !== t.base || s.outcome_high !== t.base);
+  return { shown: moving.slice(0, MAX_BARS), hiddenMoving: moving.slice(MAX_BARS), still: t.swings.length - moving.length };
+}
+
+function tornadoFigure(t, outcome, prospect, doc) {
+  const info = OUTCOMES[outcome];
+  const unit = t.unit;
+  const u = unitLabel(unit);
+  const { shown } = shownSwings(t);
+  const labels = shown.map((s) => inputInfo(s.path, doc.facies).label);
+  const side = (which, colour) => {
+    const key = `outcome_${which}`;
+    const valueKey = `${which}_value`;
+    const pct = percentile(which === "low" ? doc.low_quantile : doc.high_quantile);
+    return {
+      type: "bar", orientation: "h", name: `input at its ${which} value (${pct} percentile)`,
+      y: labels, x: shown.map((s) => s[key] - t.base), base: t.base, marker: { color: colour },
+      customdata: shown.map((s) => [s[valueKey], s[key]]),
+      hovertext: shown.map((s, i) => {
+        const iu = inputInfo(s.path, doc.facies).unit;
+        const delta = s[key] - t.base;
+        return `${labels[i]} at its ${which} value (${pct} percentile): ${withU(s[valueKey], iu, { digits: 4 })}<br>` +
+          `${info.short} of ${prospect}: ${withU(s[key], unit, { digits: 4 })} ` +
+          `(${delta >= 0 ? "+" : "−"}${fmt(Math.abs(delta), { digits: 3 })} from the base ${fmt(t.base, { digits: 4 })})`;
+      }),
+      hovertemplate: "%{hovertext}<extra></extra>",
+    };
+  };
+  const traces = [side("low", SWING.low), side("high", SWING.high)];
+  const lay = layout({
+    barmode: "group", bargap: 0.28, bargroupgap: 0.04,
+    xaxis: axis(info.name, unit, { zeroline: false, exponentformat: "power" }),
+    yaxis: axis("", "", { autorange: "reversed", automargin: true, ticks: "", tickfont: { size: 10.5 } }),
+    margin: { l: 10, r: 16, t: 26, b: 40 },
+    shapes: [{ type: "line", xref: "x", yref: "paper", x0: t.base, x1: t.base, y0: 0, y1: 1,
+      line: { color: SWING.base, width: 1.5, dash: "dot" } }],
+    annotations: [{ xref: "x", yref: "paper", x: t.base, y: 1, yanchor: "bottom", showarrow: false,
+      text: `base ${fmt(t.base, { digits: 3 })}${u ? ` ${u}` : ""}`, font: { size: 10.5, color: SWING.base } }],
+  });
+  return { traces, lay, height: 84 + 30 * shown.length };
+}
+
+function swingNote(t) {
+  const { hiddenMoving, still } = shownSwings(t);
+  const parts = [];
+  if (hiddenMoving.length) {
+    const largest = Math.max(...hiddenMoving.map((s) => Math.abs(s.outcome_high - s.outcome_low)));
+    parts.push(`${hiddenMoving.length} more input${hiddenMoving.length > 1 ? "s" : ""} with smaller swings (at most ${withU(largest, t.unit, { digits: 2 })}) not drawn`);
+  }
+  if (still) parts.push(`${still} input${still > 1 ? "s" : ""} leave${still > 1 ? "" : "s"} it unchanged`);
+  return parts.length ? `${parts.join("; ")}.` : "";
+}
+
+async function drawTornadoes(doc) {
+  const box = document.getElementById("tornadoes");
+  box.replaceChildren();
+  const names = (doc.prospects || []).map((p) => p.name).filter((n) => n in doc.tornado);
+  for (const name of Object.keys(doc.tornado)) if (!names.includes(name)) names.push(name);
+  let k = 0;
+  for (const prospect of names) {
+    const charts = [];
+    const pending = []; // [element, figure] drawn once the cells are on the page
+    for (const outcome of Object.keys(OUTCOMES)) {
+      const t = doc.tornado[prospect][outcome];
+      if (!t) continue;
+      const info = OUTCOMES[outcome];
+      const head = h("h4", { class: "tornado-title" }, `${info.name} (${unitLabel(t.unit)})`);
+      const cell = h("div", { class: "tornado-cell" }, head);
+      if (!shownSwings(t).shown.length) {
+        cell.append(h("p", { class: "empty", "data-testid": "tornado-flat", "data-prospect": prospect, "data-outcome": outcome },
+          `No input moves it: ${withU(t.base, t.unit, { digits: 4 })} in every case.`));
+        charts.push(cell);
+        continue;
+      }
+      const fig = tornadoFigure(t, outcome, prospect, doc);
+      const el = h("div", { class: "plot", id: `tornado-${k++}`, "data-testid": "tornado", "data-prospect": prospect,
+        "data-outcome": outcome, style: { height: `${fig.height}px` } });
+      cell.append(el, h("div", { class: "readout small faint" }, swingNote(t)));
+      charts.push(cell);
+      pending.push([el, fig]);
+    }
+    box.append(h("section", { class: "tornado-prospect", "data-prospect": prospect }, h("h3", {}, `Prospect ${prospect}`),
+      h("div", { class: "grid2" }, charts)));
+    for (const [el, fig] of pending) await draw(el, fig.traces, fig.lay);
+  }
+}
+
+/** Three decimals, without a sign on a value that rounds to zero. */
+const fix3 = (v) => (Math.abs(v) < 0.0005 ? "0.000" : fmt(v, { fixed: 3 }));
+
+function indicesTables(doc) {
+  const level = doc.indices_confidence ? `${fmt(100 * doc.indices_confidence, { digits: 3 })} %` : "";
+  document.getElementById("idx-explain").textContent =
+    "A first-order index is the share of the variance of a hydrocarbon facies' P(hydrocarbon), over all its realisations " +
+    "in the base run, that one input explains on its own (0: none of it, 1: all of it; values near 0 can come out slightly " +
+    `negative from sampling noise). Largest first, ± one standard error, with the ${level ? `${level} ` : ""}interval; the burial ` +
+    "inputs are each realisation's own depth, uplift and gradient.";
+  const entries = Object.entries(doc.indices || {});
+  const tables = entries.map(([facies, e]) => {
+    const title = h("h4", { class: "tornado-title" }, swatch(colourOf(facies)), facies);
+    if (!e.indices) return h("div", { "data-facies": facies }, title, h("p", { class: "empty" }, `No indices: ${e.note || "no reason given"}.`));
+    const rows = Object.entries(e.indices).sort((a, b) => b[1].value - a[1].value);
+    return h("div", { "data-facies": facies }, title,
+      h("table", { class: "indices", "data-testid": "indices-table", "data-facies": facies },
+        h("caption", { class: "small muted" }, `${e.n_samples} realisations of ${facies}, mean P(hydrocarbon) ${withU(e.mean_probability_hc, "fraction", { digits: 3 })}`),
+        h("thead", {}, h("tr", {}, h("th", { scope: "col" }, "Input"), h("th", { class: "num", scope: "col" }, "Index (frac.)"),
+          h("th", { class: "num", scope: "col" }, `${level || "Confidence"} interval`), h("th", { scope: "col", class: "idx-bar-col" }, h("span", { class: "sr-only" }, "bar")))),
+        h("tbody", {}, rows.map(([path, v]) => h("tr", { "data-path": path },
+          h("td", {}, inputInfo(path, doc.facies).label),
+          h("td", { class: "num" }, `${fix3(v.value)} ± ${fix3(v.standard_error)}`),
+          h("td", { class: "num" }, `${fix3(v.ci_low)} to ${fix3(v.ci_high)}`),
+          h("td", { class: "idx-bar-col" }, h("span", { class: "idx-bar", style: { width: `${Math.max(0, Math.min(1, v.value)) * 100}%` } })))))));
+  });
+  document.getElementById("indices").replaceChildren(...(tables.length ? tables : [h("p", { class: "empty" }, "This run has no hydrocarbon facies to index.")]));
+}
+
+function sensitivityLegend(doc) {
+  const others = doc.fix_others ? `the other inputs fixed at their ${doc.fix_others}` : "the other inputs uncertain as in the scenario";
+  document.getElementById("sens-what").textContent = `${doc.inputs.length} uncertain inputs, each at its ${percentile(doc.low_quantile)} and ` +
+    `${percentile(doc.high_quantile)} percentile with ${others}; ${doc.n_evaluations} runs of the whole chain, ` +
+    `${doc.realisations ? `${doc.realisations} realisations` : "the scenario's realisations"} per facies and node.`;
+  const base = doc.fix_others ? `every input at its ${doc.fix_others}` : "every input uncertain as in the scenario";
+  document.getElementById("sens-legend").replaceChildren(
+    h("span", {}, swatch(SWING.low), `input at its low value (${percentile(doc.low_quantile)} percentile)`),
+    h("span", {}, swatch(SWING.high), `input at its high value (${percentile(doc.high_quantile)} percentile)`),
+    h("span", {}, h("span", { class: "base-mark", style: { borderColor: SWING.base } }), `base: ${base}`),
+    h("span", { class: "faint" }, "Point at a bar for the input's value and the outcome."));
+}
+
+/** What a role without the files sees: the run's own summary (base values, largest swings). */
+function sensitivitySummary(err) {
+  const res = run.result || {};
+  const rows = (res.prospects || []).flatMap((p) => Object.entries(p.outcomes || {}).map(([outcome, o]) => h("tr", {},
+    h("td", {}, p.name), h("td", {}, OUTCOMES[outcome] ? OUTCOMES[outcome].name : outcome),
+    h("td", { class: "num" }, withU(o.base, o.unit, { digits: 3 })),
+    h("td", {}, o.largest ? inputInfo(o.largest.path, res.facies).label : h("span", { class: "faint" }, "no input moves it")),
+    h("td", { class: "num" }, o.largest ? `${withU(o.largest.outcome_low, o.unit, { digits: 3 })} to ${withU(o.largest.outcome_high, o.unit, { digits: 3 })}` : "–"))));
+  document.getElementById("tornadoes").replaceChildren(h("p", { class: "empty" }, failureText(err, "the tornado charts")),
+    rows.length ? h("table", { "data-testid": "sens-summary" }, h("thead", {}, h("tr", {}, h("th", {}, "Prospect"), h("th", {}, "Outcome"),
+      h("th", { class: "num" }, "Base"), h("th", {}, "Input with the largest swing"), h("th", { class: "num" }, "Outcome at its low / high value"))),
+    h("tbody", {}, rows)) : null);
+  for (const id of ["sens-legend", "idx-title", "idx-explain"]) document.getElementById(id).hidden = true;
+}
+
+async function showSensitivity() {
+  if (!artefact("sensitivity.json")) {
+    document.getElementById("tornadoes").replaceChildren(h("p", { class: "empty" }, "This run kept no sensitivity.json."));
+    return;
+  }
+  let doc;
+  try { doc = await fetchArtefact("sensitivity.json", "json"); } catch (err) { sensitivitySummary(err); return; }
+  sensitivityLegend(doc);
+  indicesTables(doc);
+  await drawTornadoes(doc);
+}
+
 // ---------------------------------------------------------------- files
 
 function drawFiles() {
@@ -462,6 +664,7 @@ drawFiles();
 document.getElementById("map-views").hidden = !(succeeded && input === "map");
 document.getElementById("section-panel").hidden = !(succeeded && input === "cube");
 document.getElementById("well-panel").hidden = !(succeeded && run.kind === "calibrate");
+document.getElementById("sensitivity-panel").hidden = !(succeeded && run.kind === "sensitivity");
 if (succeeded && input === "map") {
   await comments.load().catch((e) => toast(errorText(e), "bad"));
   await loadMap();
@@ -470,5 +673,7 @@ if (succeeded && input === "map") {
   await loadSection(null);
 } else if (succeeded && run.kind === "calibrate") {
   await drawWell(calibrations[0]);
+} else if (succeeded && run.kind === "sensitivity") {
+  await showSensitivity();
 }
 document.body.dataset.ready = "1";

@@ -9,6 +9,7 @@ export const RUN_KINDS = [
   ["simulate", "Simulate training data only"],
   ["calibrate", "Blind test at the wells"],
   ["summarise", "Risk summary of prospects"],
+  ["sensitivity", "Sensitivity of prospect risk (tornado)"],
 ];
 const FINAL = new Set(["succeeded", "failed", "cancelled"]);
 
@@ -45,19 +46,21 @@ export class RunsPanel {
     const doc = this.getDocument();
     const rows = [];
     this.inputs = {};
-    const gridSelect = (id, label, wanted) => {
-      const def = this.match(wanted);
+    const gridSelect = (id, label, wanted, only = null) => {
+      const def = this.match(wanted, only);
       const sel = h("select", { id, "aria-label": label }, h("option", { value: "" }, "choose…"),
-        this.grids.map((g) => h("option", { value: g.id, selected: def && def.id === g.id }, `${g.name} (${g.kind})`)));
+        this.grids.filter((g) => !only || g.kind === only).map((g) => h("option", { value: g.id, selected: def && def.id === g.id }, `${g.name} (${g.kind})`)));
       rows.push(h("label", { for: id, class: "small" }, label), sel);
       return sel;
     };
-    if (kind === "classify" && doc) {
+    if ((kind === "classify" || kind === "sensitivity") && doc) {
+      const what = kind === "classify" ? "map or cube" : "map";
       this.inputs.attributes = Object.fromEntries(doc.rockphysics.seismic.attributes.map((a) =>
-        [a, gridSelect(`run-attr-${a}`, `${ATTRIBUTE_LABELS[a][0]}: map or cube`, a)]));
+        [a, gridSelect(`run-attr-${a}`, `${ATTRIBUTE_LABELS[a][0]}: ${what}`, a, kind === "sensitivity" ? "map" : null)]));
       const varying = COVARIATES.filter((c) => doc.burial.covariates[c].nodes.length > 1);
-      this.inputs.covariates = Object.fromEntries(varying.map((c) => [c, gridSelect(`run-cov-${c}`, `${covariateLabel(c)}: map`, c)]));
+      this.inputs.covariates = Object.fromEntries(varying.map((c) => [c, gridSelect(`run-cov-${c}`, `${covariateLabel(c)}: map`, c, "map")]));
     }
+    if (kind === "sensitivity") this.sensitivityInputs(rows, doc);
     if (kind === "calibrate") {
       const sel = h("select", { id: "run-well", "aria-label": "Well for the blind test" },
         this.wells.map((w) => h("option", { value: w.id }, w.name)));
@@ -68,13 +71,46 @@ export class RunsPanel {
     this.inputBox.hidden = rows.length === 0;
   }
 
+  /** Inputs of a sensitivity run: prospects, realisations, swing quantiles, the other inputs. */
+  sensitivityInputs(rows, doc) {
+    const inputs = this.inputs;
+    const row = (id, label, el, help) => {
+      rows.push(h("label", { for: id, class: "small" }, label), help ? h("div", { class: "row" }, el, h("span", { class: "help" }, help)) : el);
+      return el;
+    };
+    inputs.prospects = row("run-prospects", "Prospects", h("select", { id: "run-prospects", multiple: true, size: Math.min(4, Math.max(2, this.prospects.length)),
+      "aria-label": "Prospects of the sensitivity run" }, this.prospects.map((p) => h("option", { value: p.id, selected: true }, p.name))),
+    this.prospects.length ? "all (or none) selected: every prospect of the project" : "the project has no prospect outline yet");
+    const number = (id, label, value, attrs, help) => row(id, label, h("input", { id, type: "number", value, ...attrs, "aria-label": label }), help);
+    inputs.realisations = number("run-realisations", "Realisations per facies and node", "", { min: 10, max: 2000000, step: 10,
+      placeholder: doc ? String(doc.realisations ?? "") : "" }, "empty: the scenario's; each of the 2 × inputs + 1 evaluations runs them all");
+    inputs.low = number("run-low-q", "Low swing: quantile of each input", "0.1", { min: 0.001, max: 0.999, step: 0.05 }, "0 < low < high < 1");
+    inputs.high = number("run-high-q", "High swing: quantile of each input", "0.9", { min: 0.001, max: 0.999, step: 0.05 });
+    inputs.fix = row("run-fix-others", "Inputs not being swung", h("select", { id: "run-fix-others", "aria-label": "Inputs not being swung" },
+      h("option", { value: "" }, "uncertain, as in the scenario"), h("option", { value: "mean" }, "fixed at their mean"),
+      h("option", { value: "median" }, "fixed at their median")));
+  }
+
   params() {
     const kind = this.kind.value;
     const val = (sel) => (sel && sel.value ? Number(sel.value) : null);
+    const pick = (m) => Object.fromEntries(Object.entries(m || {}).map(([k, sel]) => [k, val(sel)]).filter(([, v]) => v !== null));
     if (kind === "classify") {
-      const pick = (m) => Object.fromEntries(Object.entries(m || {}).map(([k, sel]) => [k, val(sel)]).filter(([, v]) => v !== null));
       return { attribute_grids: pick(this.inputs.attributes), covariate_grids: pick(this.inputs.covariates),
         prospect_ids: this.prospects.map((p) => p.id) };
+    }
+    if (kind === "sensitivity") {
+      const i = this.inputs;
+      const chosen = i.prospects ? [...i.prospects.selectedOptions].map((o) => Number(o.value)) : [];
+      const out = { attribute_grids: pick(i.attributes), covariate_grids: pick(i.covariates),
+        // all selected: every prospect of the project (the server resolves the list)
+        prospect_ids: chosen.length === this.prospects.length ? [] : chosen };
+      const num = (el) => (el && el.value.trim() !== "" ? Number(el.value) : null);
+      if (num(i.realisations) !== null) out.realisations = num(i.realisations);
+      if (num(i.low) !== null) out.low_quantile = num(i.low);
+      if (num(i.high) !== null) out.high_quantile = num(i.high);
+      if (i.fix && i.fix.value) out.fix_others = i.fix.value;
+      return out;
     }
     if (kind === "calibrate") return { well_id: val(this.inputs.well) };
     return {};
@@ -86,7 +122,7 @@ export class RunsPanel {
     this.startBtn = h("button", { type: "button", class: "primary", id: "run-start", disabled: !canRun, onclick: () => this.start() }, "Start run");
     this.kind.addEventListener("change", () => this.renderInputs());
     this.inputBox = h("div", { class: "fields", style: { gridTemplateColumns: "minmax(150px, 260px) minmax(200px, 360px)", marginBottom: "6px" }, hidden: true });
-    this.note = h("div", { class: "small", role: "status", "aria-live": "polite" });
+    this.note = h("div", { class: "small", role: "status", "aria-live": "polite", "data-testid": "run-note" });
     this.active = h("div", { "data-testid": "run-active" });
     this.list = h("div");
     this.container.replaceChildren(

@@ -366,3 +366,44 @@ def build_world(base_url: str) -> World:
                      headers={"If-Match": doc["etag"]}))
     owner.close()
     return World(base_url, pid, scenario["id"], fork["id"], grids, wells, prospects, cube_ids)
+
+
+@dataclass
+class MapProject:
+    """A second invented project: the world's attribute and covariate maps and prospect
+    outlines, one scenario with every section marked ready, owner1 owner and viewer1 viewer.
+    Tests that add many runs use it, so the shared project's activity feed stays as the
+    other tests expect it."""
+
+    project_id: int
+    scenario_id: int
+    grid_ids: dict[str, int] = field(default_factory=dict)
+    prospect_ids: list[int] = field(default_factory=list)
+
+
+def build_map_project(world: World, name: str) -> MapProject:
+    """Make a :class:`MapProject` through the API (the maps are the world's, rebuilt)."""
+    owner = login(world.base_url, "owner1")
+    try:
+        pid = _check(owner.post("/api/projects", json={
+            "name": name, "description": "Browser-test project (invented data)"}))["id"]
+        _check(owner.post(f"/api/projects/{pid}/members",
+                          json={"username": "viewer1", "role": "viewer"}))
+        sid = _check(owner.post(f"/api/projects/{pid}/scenarios",
+                                json={"name": "Burial-aware base case"}))["id"]
+        octet = {"Content-Type": "application/octet-stream"}
+        grids = {n: _check(owner.post(f"/api/projects/{pid}/grids",
+                                      params={"filename": f"{n}.csv", "name": n},
+                                      content=_map_csv(n, v), headers=octet))["id"]
+                 for n, v in _maps().items()}
+        prospects = []
+        for p in _check(owner.get(f"/api/projects/{world.project_id}/prospects")):
+            prospects.append(_check(owner.post(f"/api/projects/{pid}/prospects", json={
+                "name": p["name"], "outline": p["outline"]}))["id"])
+        for section in ("burial", "geology", "rockphysics"):
+            etag = owner.get(f"/api/scenarios/{sid}/sections/{section}").headers["ETag"]
+            _check(owner.put(f"/api/scenarios/{sid}/sections/{section}/ready",
+                             json={"ready": True}, headers={"If-Match": etag}))
+    finally:
+        owner.close()
+    return MapProject(pid, sid, grids, sorted(prospects))

@@ -11,7 +11,6 @@ estimator called by hand.
 
 from __future__ import annotations
 
-import copy
 import json
 
 import numpy as np

@@ -22,6 +22,10 @@ calibrate
     ``calibration.json`` (blind-test confusion matrices) and ``well_facies.csv``.
 summarise
     ``risk_table.json`` and ``risk_table.csv``: every prospect x scenario.
+sensitivity (maps)
+    ``sensitivity.json`` (tornado of every prospect's risk numbers, first-order
+    indices; :func:`porecast.services.sensitivity.prospect_sensitivity`) and
+    ``tornado.html``, the charts as a self-contained page (plotly.js inlined).
 """
 
 from __future__ import annotations
@@ -33,6 +37,7 @@ import json
 import math
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -573,3 +578,107 @@ def summarise_outputs(
     with atomic_path(out_dir / "risk_table.csv") as tmp:
         Path(tmp).write_text(buf.getvalue(), encoding="utf-8")
     return summary
+
+
+# --------------------------------------------------------------------------- sensitivity
+
+
+SENSITIVITY_FILES = ("sensitivity.json", "tornado.html")
+
+
+def sensitivity_outputs(
+    document: Mapping[str, Any],
+    seed: int,
+    attribute_paths: Mapping[str, Path],
+    covariate_paths: Mapping[str, Path],
+    prospects: Sequence[Mapping[str, Any]],
+    out_dir: Path,
+    *,
+    realisations: int | None = None,
+    low_q: float = 0.1,
+    high_q: float = 0.9,
+    fix_others: str | None = None,
+    correlation_length_m: float | None = None,
+    progress: Progress = _quiet,
+) -> dict[str, Any]:
+    """Tornado charts and first-order indices of prospect risk on attribute maps.
+
+    Writes ``sensitivity.json`` (the document of
+    :func:`porecast.services.sensitivity.prospect_sensitivity` with the scenario,
+    seed, facies and prospects added) and ``tornado.html`` (its charts, plotly.js
+    inlined from the local package) into ``out_dir``. Progress: the chain
+    evaluations of the tornado take 0-92 % of the step, labelled
+    ``tornado (done of total evaluations)``.
+    """
+    from . import sensitivity  # imports this module (prospect_risks)
+
+    sc, _ = scenario_for_run(document, seed)
+    # What the maps must supply: the scenario's attributes and its varying covariates
+    # (the two attributes of a facies model the map readers ask for).
+    node_axes, _ = forward.covariate_grid(sc)
+    probe: Any = SimpleNamespace(attributes=tuple(sc.rockphysics.seismic.attributes),
+                            axes=tuple(c for c, v in node_axes.items() if len(v) > 1))
+    grid, values = cls.map_attributes(probe, attribute_paths)
+    covs = cls.covariate_maps(probe, covariate_paths, grid.shape, "the attribute maps")
+    total = 2 * len(sensitivity.input_distributions(sc)) + 1
+    progress(0.0, f"tornado (0 of {total} evaluations)")
+
+    def on_evaluation(done: int, n: int, label: str) -> None:
+        progress(0.92 * done / n, f"{label} ({done} of {n} evaluations)")
+
+    doc = sensitivity.prospect_sensitivity(
+        sc, values, grid, covs, prospects, realisations=realisations, low_q=low_q,
+        high_q=high_q, fix_others=fix_others, correlation_length_m=correlation_length_m,
+        progress=on_evaluation)
+    progress(0.95, "write")
+    doc.update(
+        kind="porecast.sensitivity", version=1,
+        scenario={"name": sc.name, "hash": scenario_hash(dict(document))}, seed=int(seed),
+        facies=[f.name for f in sc.geology.facies],
+        hydrocarbon=[bool(f.hydrocarbon) for f in sc.geology.facies],
+        prospects=[{"id": p.get("id"), "name": p["name"]} for p in prospects],
+        correlation_length_m=correlation_length_m, outputs=list(SENSITIVITY_FILES),
+        indices_confidence=_default("confidence", sensitivity.sensitivity.first_order_indices),
+        caution=CAUTION)
+    figure = sensitivity.tornado_figure({**doc, "scenario": sc.name})
+    with atomic_path(out_dir / "tornado.html") as tmp:
+        figure.write_html(tmp, include_plotlyjs=True, full_html=True)
+    write_json(out_dir / "sensitivity.json", doc)
+    return doc
+
+
+def _default(name: str, func: Callable[..., Any]) -> Any:
+    """The default value of a keyword of ``func`` (the coverage of the index intervals)."""
+    import inspect
+
+    return inspect.signature(func).parameters[name].default
+
+
+def sensitivity_result(doc: Mapping[str, Any]) -> dict[str, Any]:
+    """The small summary of a sensitivity run kept on its row (``run.result``).
+
+    Per prospect and outcome the base value, its unit and the input with the
+    largest swing (with both outcomes; None when no input moves the outcome); the
+    charts themselves are in ``sensitivity.json``.
+    """
+    prospects = []
+    for p in doc["prospects"]:
+        entry: dict[str, Any] = {"id": p["id"], "name": p["name"], "outcomes": {}}
+        for outcome, t in doc["tornado"][p["name"]].items():
+            top = next((sw for sw in t["swings"]  # largest swing first
+                        if sw["outcome_low"] != t["base"] or sw["outcome_high"] != t["base"]),
+                       None)
+            entry["outcomes"][outcome] = {
+                "base": t["base"], "unit": t["unit"],
+                "largest": None if top is None else {
+                    "path": top["path"], "outcome_low": top["outcome_low"],
+                    "outcome_high": top["outcome_high"]}}
+        prospects.append(entry)
+    return {
+        "kind": doc["kind"], "scenario": doc["scenario"], "seed": doc["seed"],
+        "facies": doc["facies"], "hydrocarbon": doc["hydrocarbon"],
+        "n_inputs": len(doc["inputs"]), "n_evaluations": doc["n_evaluations"],
+        "low_quantile": doc["low_quantile"], "high_quantile": doc["high_quantile"],
+        "fix_others": doc["fix_others"], "realisations": doc["realisations"],
+        "prospects": prospects, "outputs": list(doc["outputs"]),
+    }

@@ -2,12 +2,12 @@
 
 The database, not the broker, is the record of what a run has done. A run is
 split into units of work (rows of ``run_tasks``): ``main`` (a whole simulate,
-map classification, calibration or summary; for a cube, the training and the
-tile plan), ``tile-NNNNN`` (a trace range of a cube) and ``join`` (merging the
-tiles). A broker message only says "work on unit (run, key)"; every message
-can arrive twice (late acknowledgement re-delivers a task whose worker died,
-and the recovery sweep below re-sends units it believes lost), so handling is
-idempotent:
+map classification, calibration, summary or sensitivity analysis; for a cube,
+the training and the tile plan), ``tile-NNNNN`` (a trace range of a cube) and
+``join`` (merging the tiles). A broker message only says "work on unit (run,
+key)"; every message can arrive twice (late acknowledgement re-delivers a task
+whose worker died, and the recovery sweep below re-sends units it believes
+lost), so handling is idempotent:
 
 * **Claim with a delivery counter.** A worker starting a unit increments
   ``deliveries`` and commits before any work. A unit already finished is a

@@ -115,7 +115,7 @@ def load_inputs(db: Session, env: StepEnv, run: Run, key: str) -> Inputs:
         raise ValueError("the scenario revision of this run no longer exists")
     params = dict(run.parameters or {})
     inp = Inputs(run.id, run.kind, int(run.seed), params, dict(rev.document), rev.number)
-    if run.kind == "classify":
+    if run.kind in ("classify", "sensitivity"):
         for name, grid_id in params.get("attribute_grids", {}).items():
             grid = db.get(Grid, int(grid_id))
             if grid is None:
@@ -325,6 +325,16 @@ def _main(ctx: StepContext, inp: Inputs) -> list[jobs.Send]:
             "labels": c["labels"], "matrix": c["matrix"],
             "grouped_accuracy": summary["grouped_confusion"]["accuracy"],
             "covariates": summary["covariates"], "assumed": summary["assumed"]})
+    elif inp.kind == "sensitivity":
+        if inp.cube:
+            raise ValueError("a sensitivity run classifies attribute maps, not cubes")
+        doc = ex.sensitivity_outputs(
+            inp.document, inp.seed, inp.attribute_paths, inp.covariate_paths, inp.prospects,
+            stage, realisations=realisations, low_q=p.get("low_quantile", 0.1),
+            high_q=p.get("high_quantile", 0.9), fix_others=p.get("fix_others"),
+            correlation_length_m=p.get("correlation_length_m"),
+            progress=ctx.reporter((0.0, 1.0)))
+        finish["run_result"] = _compact(ex.sensitivity_result(doc))
     elif inp.kind == "summarise":
         summary = ex.summarise_outputs(inp.summarise, inp.prospects, stage,
                                        correlation_length_m=p.get("correlation_length_m"),

@@ -20,9 +20,9 @@ import re
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
@@ -46,7 +46,7 @@ from .errors import Conflict, InvalidInput, NotFound
 from .run_steps import run_dir
 from .scenarios import assert_runnable, get_scenario
 
-KINDS = ("simulate", "classify", "calibrate", "summarise")
+KINDS = ("simulate", "classify", "calibrate", "summarise", "sensitivity")
 MAX_ID = 2**31 - 1
 ARTEFACT_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,127}$")
 #: Parameters that change how work is split, not what is computed (left out of the hash).
@@ -89,6 +89,35 @@ class CalibrateParams(_Params):
     sw_cutoff: float | None = Field(None, gt=0, lt=1)
 
 
+class SensitivityParams(_Params):
+    """Parameters of a sensitivity analysis of prospect risk on attribute maps.
+
+    Every uncertain input of the scenario is set to its ``low_quantile`` and then its
+    ``high_quantile`` value, one at a time (2 x inputs + 1 runs of the whole chain);
+    ``prospect_ids`` empty means every prospect of the project.
+    """
+
+    attribute_grids: dict[str, int] = Field(min_length=1, max_length=8)
+    covariate_grids: dict[str, int] = Field(default_factory=dict, max_length=4)
+    prospect_ids: list[int] = Field(default_factory=list, max_length=500)
+    low_quantile: float = Field(0.1, description="Quantile of each input's low swing, "
+                                "0 < low_quantile < high_quantile < 1")
+    high_quantile: float = Field(0.9, description="Quantile of each input's high swing, "
+                                 "0 < low_quantile < high_quantile < 1")
+    fix_others: Literal["mean", "median"] | None = Field(
+        None, description="Fix the inputs not being swung at their mean or median (default: "
+        "leave them uncertain)")
+    correlation_length_m: float | None = Field(None, ge=0, le=1e6)
+
+    @field_validator("low_quantile", "high_quantile")
+    @classmethod
+    def _open_unit_interval(cls, value: float) -> float:
+        if not 0.0 < value < 1.0:
+            raise ValueError(f"must be between 0 and 1, exclusive (0 < low_quantile < "
+                             f"high_quantile < 1); got {value:g}")
+        return value
+
+
 class SummariseParams(BaseModel):
     """Parameters of a project risk table."""
 
@@ -101,6 +130,7 @@ class SummariseParams(BaseModel):
 PARAMS: dict[str, type[BaseModel]] = {
     "simulate": SimulateParams, "classify": ClassifyParams,
     "calibrate": CalibrateParams, "summarise": SummariseParams,
+    "sensitivity": SensitivityParams,
 }
 
 
@@ -165,9 +195,9 @@ def _outline_inputs(prospects: list[Prospect]) -> list[Any]:
     return [[p.id, p.name, p.outline] for p in prospects]
 
 
-def _check_classify(db: Session, project_id: int, doc: dict[str, Any],
-                    params: dict[str, Any]) -> dict[str, Any]:
-    sc = validate_scenario(doc)
+def _check_grids(db: Session, project_id: int, sc: Any, params: dict[str, Any]
+                 ) -> tuple[dict[str, Grid], dict[str, Grid], bool]:
+    """Attribute and covariate grids of a classification: (attributes, covariates, cube)."""
     wanted: list[str] = [str(a) for a in sc.rockphysics.seismic.attributes]
     given = params["attribute_grids"]
     missing = [a for a in wanted if a not in given]
@@ -209,17 +239,67 @@ def _check_classify(db: Session, project_id: int, doc: dict[str, Any],
             raise _invalid(f"params.covariate_grids.{name}",
                            f"map of shape {got}; the attribute grids need {want}")
         cov_grids[name] = g
+    return grids, cov_grids, cube
+
+
+def _grid_hashes(grids: dict[str, Grid], cov_grids: dict[str, Grid]) -> dict[str, str]:
+    return ({f"attribute:{a}": g.sha256 for a, g in grids.items()}
+            | {f"covariate:{c}": g.sha256 for c, g in cov_grids.items()})
+
+
+def _check_classify(db: Session, project_id: int, doc: dict[str, Any],
+                    params: dict[str, Any]) -> dict[str, Any]:
+    sc = validate_scenario(doc)
+    grids, cov_grids, cube = _check_grids(db, project_id, sc, params)
     prospects = _prospects_in_project(db, project_id, params.get("prospect_ids", []))
     if cube and prospects:
         raise _invalid("params.prospect_ids", "prospect risk needs a map classification; "
                        "classify a map of the horizon for it")
     if not cube and "tile_traces" in params:
         raise _invalid("params.tile_traces", "tiles apply to cubes only")
-    return {
-        "grids": {f"attribute:{a}": g.sha256 for a, g in grids.items()}
-        | {f"covariate:{c}": g.sha256 for c, g in cov_grids.items()},
-        "prospects": _outline_inputs(prospects),
-    }
+    return {"grids": _grid_hashes(grids, cov_grids), "prospects": _outline_inputs(prospects)}
+
+
+def _check_sensitivity(db: Session, project_id: int, doc: dict[str, Any],
+                       params: dict[str, Any]) -> dict[str, Any]:
+    """Maps only, at least one prospect (empty ``prospect_ids``: all of the project's,
+    resolved here so the run keeps the outlines it was started with), names unique."""
+    low, high = params.get("low_quantile", 0.1), params.get("high_quantile", 0.9)
+    if not low < high:
+        raise _invalid("params.high_quantile",
+                       f"must be greater than low_quantile ({low:g}): 0 < low_quantile < "
+                       f"high_quantile < 1; got {high:g}")
+    sc = validate_scenario(doc)
+    grids, cov_grids, cube = _check_grids(db, project_id, sc, params)
+    if cube:
+        names = ", ".join(f"{g.name!r}" for g in grids.values())
+        raise _invalid("params.attribute_grids",
+                       f"a sensitivity run classifies attribute maps, and {names} are cubes; "
+                       "give maps of the horizon (prospect risk is computed on maps)")
+    from porecast.physics.forward import uncertain_inputs
+
+    if not uncertain_inputs(sc):
+        raise _invalid("document", "the scenario has no uncertain input to swing: give at "
+                       "least one input a distribution that is not a constant")
+    ids = list(params.get("prospect_ids", []))
+    if ids:
+        prospects = _prospects_in_project(db, project_id, ids)
+    else:
+        prospects = list(db.scalars(select(Prospect).where(Prospect.project_id == project_id)
+                                    .order_by(Prospect.id)))
+        if not prospects:
+            raise _invalid("params.prospect_ids",
+                           "a sensitivity run needs at least one prospect outline, and the "
+                           "project has none: draw one first")
+        params["prospect_ids"] = [p.id for p in prospects]
+    seen: set[str] = set()
+    for p in prospects:
+        if p.name in seen:
+            raise _invalid("params.prospect_ids", f"two prospects are called {p.name!r}; the "
+                           "tornado charts are named by prospect, so rename one or choose "
+                           "prospect_ids")
+        seen.add(p.name)
+    return {"grids": _grid_hashes(grids, cov_grids), "prospects": _outline_inputs(prospects)}
 
 
 def _check_calibrate(db: Session, project_id: int, doc: dict[str, Any],
@@ -293,8 +373,8 @@ def create_run(
 ) -> RunView:
     """Queue a run of a scenario revision (default: the head) and send its first message.
 
-    Simulate, classify and calibrate runs need every section marked ready, or an
-    owner's recorded override (:func:`porecast.services.scenarios.assert_runnable`;
+    Simulate, classify, calibrate and sensitivity runs need every section marked ready,
+    or an owner's recorded override (:func:`porecast.services.scenarios.assert_runnable`;
     the ready marks are those of the current sections, also for an older revision);
     a summarise run reads other runs and needs the right to contribute. The run
     is committed before its message is sent, so a worker always finds it.
@@ -323,6 +403,8 @@ def create_run(
         inputs = _check_calibrate(db, scenario.project_id, doc, clean)
     elif kind == "summarise":
         inputs = _check_summarise(db, scenario.project_id, clean)
+    elif kind == "sensitivity":
+        inputs = _check_sensitivity(db, scenario.project_id, doc, clean)
     else:
         inputs = {}
     hashed = {k: v for k, v in clean.items() if k not in EXECUTION_ONLY}

@@ -220,7 +220,7 @@ def realisation_indices(result: forward.ForwardResult, model: cls.FaciesModel, *
 
 
 def _short(path: str) -> str:
-    """Readable label of an input path (``geology.sand.coating_fraction`` -> ``sand: coating fraction``)."""
+    """Readable label of an input path, e.g. ``sand: coating fraction``."""
     parts = path.split(".")
     if parts[-1] == "uncertainty":
         parts = parts[:-1]

@@ -31,7 +31,7 @@ from ..errors import MEMBER, R409
 
 router = APIRouter(tags=["runs"])
 
-RunKind = Literal["simulate", "classify", "calibrate", "summarise"]
+RunKind = Literal["simulate", "classify", "calibrate", "summarise", "sensitivity"]
 RunStatus = Literal["queued", "running", "succeeded", "failed", "cancelled"]
 
 
@@ -42,7 +42,10 @@ class RunCreateIn(BaseModel):
     {attribute: grid_id}, covariate_grids?: {covariate: grid_id}, prospect_ids?: [..],
     max_mahalanobis?, correlation_length_m?, tile_traces?, realisations?}``; calibrate
     ``{well_id, covariates?: {name: value}, hydrocarbon_facies?, block_m?, vshale_cutoff?,
-    sw_cutoff?, realisations?}``; summarise ``{prospect_ids?, correlation_length_m?}``.
+    sw_cutoff?, realisations?}``; summarise ``{prospect_ids?, correlation_length_m?}``;
+    sensitivity (maps only) ``{attribute_grids, covariate_grids?, prospect_ids? (default:
+    all of the project's), low_quantile? (0.1), high_quantile? (0.9), fix_others?: "mean" |
+    "median", correlation_length_m?, realisations?}``.
     """
 
     kind: RunKind
