@@ -335,14 +335,13 @@ def test_own_exp_and_log_match_numpy():
             [0.0, -1e-300, -707.9, -708.0, -708.1, -np.inf] + [-1.0] * 250,
         ]
     )
-    ibits = np.empty(256, dtype=np.int64)
-    fbits = ibits.view(np.float64)
     for s in range(0, t.size, 256):
         out = np.empty(256)
-        C._exp_block(t[s : s + 256], out, 256, ibits, fbits)
+        C._exp_block(t[s : s + 256], out, 256)
         ref = np.exp(t[s : s + 256])
         ref[t[s : s + 256] < -708.0] = 0.0
         np.testing.assert_allclose(out, ref, rtol=4e-16, atol=0)
+    assert C._exp1(np.nan) == 0.0  # documented: NaN -> 0 (no-data rows are overwritten)
     y = np.concatenate(
         [
             rng.uniform(0.5, 2.0, 256),
@@ -352,10 +351,39 @@ def test_own_exp_and_log_match_numpy():
     )
     for s in range(0, y.size, 256):
         out = np.empty(256)
-        C._log_block(y[s : s + 256], out, 256, ibits, fbits)
+        C._log_block(y[s : s + 256], out, 256)
         with np.errstate(divide="ignore"):
             ref = np.log(y[s : s + 256])
         np.testing.assert_allclose(out, ref, rtol=4e-16, atol=4e-16)
+
+
+@needs_numba
+def test_own_exp_error_bound():
+    # The documented bound of the minimax exp: relative error below 2e-16 (0.9 ulp of
+    # 1; measured maximum 1.64e-16). Reference: numpy's exp in extended precision where
+    # the platform has it (x86 long double, 64-bit mantissa); otherwise numpy's double
+    # exp, which is itself within 1 ulp, so the bound is widened by one ulp.
+    C._numba_kernels()
+    rng = np.random.default_rng(12)
+    half_ln2 = math.log(2.0) / 2.0
+    # Arguments spread over the whole range and piled up at the ends of the reduced
+    # interval (t = n ln 2 +- ln(2)/2), where the polynomial error peaks.
+    n_ln2 = -math.log(2.0) * rng.integers(0, 1021, 200_000)
+    t = np.concatenate(
+        [
+            -rng.uniform(0.0, 708.0, 400_000),
+            -rng.uniform(0.0, 1.0, 200_000),
+            np.minimum(n_ln2 + rng.uniform(-1e-9, 1e-9, 200_000) + half_ln2, 0.0),
+            np.maximum(n_ln2 + rng.uniform(-1e-9, 1e-9, 200_000) - half_ln2, -708.0),
+        ]
+    )
+    got = np.empty_like(t)
+    C._exp_block(t, got, t.size)
+    extended = np.finfo(np.longdouble).nmant >= 63
+    ref = np.exp(t.astype(np.longdouble)) if extended else np.exp(t)
+    rel = np.abs((got.astype(ref.dtype) - ref) / ref).astype(np.float64)
+    bound = 2e-16 if extended else 2e-16 + np.finfo(np.float64).eps
+    assert rel.max() < bound, rel.max()
 
 
 @pytest.mark.parametrize("engine", ENGINES)
@@ -564,6 +592,80 @@ def test_chunked_classification_equals_whole(rng, engine):
     for field in ("posterior", "most_likely", "mahalanobis", "entropy", "unclassified"):
         np.testing.assert_array_equal(
             getattr(whole, field), np.concatenate([getattr(p, field) for p in parts])
+        )
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_chunked_nonstationary_classification_equals_whole(rng, engine):
+    # Bit-identical results however the rows are split into calls, for the gridded
+    # kernel too (one covariate, the fast path; and two covariates, the general one).
+    k, d, n = 4, 2, 10_000
+    x = rng.normal(scale=2.0, size=(n, d))
+    x[::17] = np.nan
+    nodes = np.array([0.0, 300.0, 700.0, 1500.0, 2000.0])
+    means = rng.normal(size=(nodes.size, k, d))
+    covs = random_spd(rng, nodes.size * k, d).reshape(nodes.size, k, d, d)
+    c = rng.uniform(-100.0, 2100.0, n)
+    c[5::31] = np.nan
+
+    def run(s):
+        return classify(
+            x[s], means, covs, covariate=c[s], nodes=nodes, max_mahalanobis=3.0, engine=engine
+        )
+
+    whole = run(slice(None))
+    parts = [run(slice(s, s + 777)) for s in range(0, n, 777)]
+    for field in ("posterior", "most_likely", "mahalanobis", "entropy", "unclassified"):
+        np.testing.assert_array_equal(
+            getattr(whole, field), np.concatenate([getattr(p, field) for p in parts])
+        )
+    assert whole.n_clamped == sum(p.n_clamped for p in parts) > 0
+    model = NonstationaryGaussianFacies(engine=engine).fit(
+        rng.normal(size=(3, 2, k, 40, d)), {"uplift_m": [0.0, 400.0, 900.0], "depth_m": [1e3, 3e3]}
+    )
+    cov2 = {"uplift_m": rng.uniform(0.0, 900.0, n), "depth_m": rng.uniform(1e3, 3e3, n)}
+    whole2 = model.predict_proba(np.nan_to_num(x), cov2)
+    parts2 = [
+        model.predict_proba(
+            np.nan_to_num(x[s : s + 777]), {a: v[s : s + 777] for a, v in cov2.items()}
+        )
+        for s in range(0, n, 777)
+    ]
+    np.testing.assert_array_equal(whole2, np.concatenate(parts2))
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_posterior_into_given_array(rng, engine):
+    # out= writes into (and returns) the caller's array: the same numbers as a fresh
+    # result, for both functions; wrong arrays are refused with the expected shape.
+    k, d, n = 3, 2, 1000
+    means = rng.normal(size=(k, d))
+    covs = random_spd(rng, k, d)
+    x = rng.normal(scale=2.0, size=(n, d))
+    priors = rng.dirichlet(np.ones(k), size=n)
+    buf = np.full((n, k), -1.0)
+    got = posterior(x, means, covs, priors, engine=engine, out=buf)
+    assert got is buf
+    np.testing.assert_array_equal(buf, posterior(x, means, covs, priors, engine=engine))
+    nodes = np.array([0.0, 1.0, 2.0])
+    c = rng.uniform(-0.5, 2.5, n)
+    nm = np.stack([means, means + 0.3, means - 0.2])
+    nc = np.stack([covs, 1.5 * covs, 0.7 * covs])
+    got = posterior_nonstationary(x, c, nodes, nm, nc, engine=engine, out=buf)
+    assert got is buf
+    np.testing.assert_array_equal(buf, posterior_nonstationary(x, c, nodes, nm, nc, engine=engine))
+    with pytest.raises(
+        ValueError, match=r"out must be .*shape \(n_points, n_facies\) = \(1000, 3\)"
+    ):
+        posterior(x, means, covs, engine=engine, out=np.empty((n, k + 1)))
+    with pytest.raises(ValueError, match="out must be .*float32"):
+        posterior(x, means, covs, engine=engine, out=np.empty((n, k), dtype=np.float32))
+    with pytest.raises(ValueError, match="non-contiguous or read-only"):
+        posterior(x, means, covs, engine=engine, out=np.empty((k, n)).T)
+    shared = np.zeros(n * k)
+    with pytest.raises(ValueError, match="out must not share memory with x"):
+        posterior(
+            shared[: n * d].reshape(n, d), means, covs, engine=engine, out=shared.reshape(n, k)
         )
 
 
