@@ -13,10 +13,11 @@ from typing import Any
 import numpy as np
 
 from .io import GridData, atomic_path, write_npz
-from .physics import forward, risk
+from .physics import forward
 from .services import calibration as calibration_service
 from .services import classification as cls
 from .services import sensitivity as sensitivity_service
+from .services.run_execution import prospect_risks
 from .services.simulation import load
 
 
@@ -141,16 +142,14 @@ def _cmd_classify(args: argparse.Namespace) -> int:
 
 
 def _prospect_risks(args, model, grid, posterior, seed) -> list[dict[str, Any]]:
-    X, Y = risk.cell_centres(grid.shape, grid.x0, grid.y0, grid.dx, grid.dy, grid.rotation_deg)
-    cell_area = abs(grid.dx * grid.dy)
-    rows = []
-    for p in _read_prospects(args.prospects):
-        mask = risk.polygon_mask(p["outline"], X, Y)
-        r = risk.prospect_risk(posterior, list(model.hydrocarbon), mask, cell_area, seed=seed,
-                               correlation_length_m=args.correlation_length,
-                               spacing=(abs(grid.dx), abs(grid.dy)))
-        rows.append({"name": p["name"], **{k: v for k, v in r._asdict().items()
-                                          if k != "realised_areas"}})
+    """Risk numbers per prospect: the service's function, a bad outline an error here."""
+    rows = prospect_risks(posterior, grid, list(model.hydrocarbon),
+                          _read_prospects(args.prospects), seed=seed,
+                          correlation_length_m=args.correlation_length)
+    for row in rows:
+        if "error" in row:
+            raise ValueError(f"prospect {row['name']}: {row['error']}")
+        row.pop("prospect_id", None)
     return rows
 
 
