@@ -32,6 +32,8 @@ export class RunsPanel {
     this.available = true;
     this.grids = [];
     this.wells = [];
+    this.prospects = [];
+    this.loaded = false; // the project's maps, wells and prospects are in
     this.build();
   }
 
@@ -118,8 +120,11 @@ export class RunsPanel {
 
   build() {
     const canRun = this.role !== "viewer" && this.role !== "reviewer";
-    this.kind = h("select", { id: "run-kind", "aria-label": "What to run" }, RUN_KINDS.map(([k, l]) => h("option", { value: k }, l)));
-    this.startBtn = h("button", { type: "button", class: "primary", id: "run-start", disabled: !canRun, onclick: () => this.start() }, "Start run");
+    // Both wait for the project's maps, wells and prospects (load): a run's inputs are chosen among them.
+    this.kind = h("select", { id: "run-kind", "aria-label": "What to run", disabled: true, title: "Loading the project's maps, wells and prospects…" },
+      RUN_KINDS.map(([k, l]) => h("option", { value: k }, l)));
+    this.canRun = canRun;
+    this.startBtn = h("button", { type: "button", class: "primary", id: "run-start", disabled: true, onclick: () => this.start() }, "Start run");
     this.kind.addEventListener("change", () => this.renderInputs());
     this.inputBox = h("div", { class: "fields", style: { gridTemplateColumns: "minmax(150px, 260px) minmax(200px, 360px)", marginBottom: "6px" }, hidden: true });
     this.note = h("div", { class: "small", role: "status", "aria-live": "polite", "data-testid": "run-note" });
@@ -134,7 +139,14 @@ export class RunsPanel {
     const pid = this.scenario.project_id;
     [this.grids, this.wells, this.prospects] = await Promise.all([api.get(`/projects/${pid}/grids`),
       api.get(`/projects/${pid}/wells`), api.get(`/projects/${pid}/prospects`)]).catch(() => [[], [], []]);
-    this.renderInputs();
+    if (!this.loaded) {
+      // once: later reloads (after a start, at a run's end) keep what the user has typed
+      this.loaded = true;
+      this.kind.disabled = false;
+      this.kind.removeAttribute("title");
+      this.startBtn.disabled = !(this.canRun && this.available);
+      this.renderInputs();
+    }
     try {
       const runs = await api.get(`/projects/${this.scenario.project_id}/runs`);
       const mine = runs.filter((r) => r.scenario_id === this.scenario.id);
@@ -179,7 +191,7 @@ export class RunsPanel {
         this.note.replaceChildren(h("span", { class: "field-error" }, `The run could not start: ${errorText(err)}`));
       }
     } finally {
-      this.startBtn.disabled = !this.available;
+      this.startBtn.disabled = !(this.canRun && this.available);
     }
   }
 

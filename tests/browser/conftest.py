@@ -96,7 +96,9 @@ class Session:
         self.page = self.context.new_page()
         self.page.set_default_timeout(20_000)
         self.errors: list[str] = []
-        self.page.on("pageerror", lambda e: self.errors.append(str(e)))
+        # the page's address and the script's stack, so a failure says where it came from
+        self.page.on("pageerror", lambda e: self.errors.append(
+            f"{e} [on {self.page.url}] {getattr(e, 'stack', '') or ''}"))
         self.base_url = base_url
         if username:
             self.sign_in(username)
