@@ -324,6 +324,68 @@ def test_lost_definiteness_is_flagged_by_both_engines(rng, d):
 
 
 @needs_numba
+@pytest.mark.parametrize("k", [1, 6, 8, 9])
+@pytest.mark.parametrize("even", [True, False])
+def test_one_covariate_fast_path_matches_numpy_engine(rng, k, even):
+    # The compiled kernel's fused path (one covariate, two attributes, up to 8 facies;
+    # evenly spaced nodes found by arithmetic; the posterior without a log determinant)
+    # against the numpy engine, which the tests above check against scipy and sklearn.
+    # k = 9 takes the general path. Attribute scales from 1e-75 to 1e75 put the
+    # determinants near both ends of the float range (1e-300 to 1e300).
+    nodes = np.linspace(1000.0, 3000.0, 9) if even else np.array([900.0, 1000.0, 1750.0, 3100.0])
+    m = nodes.size
+    for scale in (1e-75, 1.0, 1e75):
+        means = scale * rng.normal(size=(m, k, 2))
+        covs = random_spd(rng, m * k, 2, scale=scale**2).reshape(m, k, 2, 2)
+        x = scale * rng.normal(scale=2.0, size=(3000, 2))
+        x[:5] *= 400.0  # far from every facies
+        c = np.concatenate([rng.uniform(500.0, 3500.0, 2000 - nodes.size), nodes,
+                            np.repeat(nodes[[0, -1]], 500)])
+        priors = rng.dirichlet(np.ones(k), size=3000)
+        got = {}
+        for name, p in (("uniform", None), ("map", priors)):
+            a = posterior_nonstationary(x, c, nodes, means, covs, p, engine="numba")
+            b = posterior_nonstationary(x, c, nodes, means, covs, p, engine="numpy")
+            np.testing.assert_allclose(a, b, rtol=1e-10, atol=1e-14)
+            np.testing.assert_allclose(a.sum(axis=1), 1.0, rtol=0, atol=1e-14)
+            got[name] = a
+        ra = classify(x, means, covs, covariate=c, nodes=nodes, engine="numba")
+        rb = classify(x, means, covs, covariate=c, nodes=nodes, engine="numpy")
+        # points on the end nodes are inside the range: only those beyond are clamped
+        assert ra.n_clamped == rb.n_clamped == np.sum((c < nodes[0]) | (c > nodes[-1]))
+        np.testing.assert_array_equal(ra.most_likely, rb.most_likely)
+        np.testing.assert_allclose(ra.posterior, got["uniform"], rtol=1e-10, atol=1e-14)
+    # on a node: that node's Gaussians (scipy.stats.multivariate_normal densities)
+    means = rng.normal(size=(m, k, 2))
+    covs = random_spd(rng, m * k, 2).reshape(m, k, 2, 2)
+    x = rng.normal(size=(50, 2))
+    got = posterior_nonstationary(x, np.full(50, nodes[1]), nodes, means, covs, engine="numba")
+    dens = np.stack([stats.multivariate_normal(means[1, j], covs[1, j]).pdf(x)
+                     for j in range(k)], axis=1)
+    np.testing.assert_allclose(got, dens / dens.sum(axis=1, keepdims=True), rtol=1e-11)
+
+
+@needs_numba
+def test_lost_definiteness_is_flagged_by_the_posterior_alone(rng):
+    # As above, on the one-covariate path of the posterior without extras (no log
+    # determinant there): the rows are flagged, not given numbers.
+    k = 2
+    means = rng.normal(size=(2, k, 2))
+    covs = np.broadcast_to(np.eye(2), (2, k, 2, 2)).copy()
+    model = C._prepare_gridded([np.array([0.0, 1.0])], means, covs)
+    model.params[1, 5 + 2] = -1.0  # facies 1, node 1: first variance negative
+    x = rng.normal(size=(40, 2))
+    cov = np.linspace(0.0, 1.0, 40)[:, None]
+    lp = C._log_priors(None, 40, k)
+    a = C._evaluate(model, x, cov, lp, C._POSTERIOR, extras=False, engine="numba")
+    b = C._evaluate(model, x, cov, lp, C._POSTERIOR, extras=False, engine="numpy")
+    assert a.counts[C._COUNT_NOT_PD] == b.counts[C._COUNT_NOT_PD] > 0
+    np.testing.assert_array_equal(np.isnan(a.values), np.isnan(b.values))
+    good = ~np.isnan(b.values)
+    np.testing.assert_allclose(a.values[good], b.values[good], rtol=1e-12, atol=1e-15)
+
+
+@needs_numba
 def test_own_exp_and_log_match_numpy():
     # The kernels' vectorisable exp (t <= 0) and log (t > 0) against numpy's libm.
     C._numba_kernels()

@@ -95,6 +95,8 @@ _LOG_LIKELIHOOD = 3  # log p(x | j), no prior
 
 # Rows per block in the compiled kernels: k x 256 float64 buffers fit in L1 cache.
 _BLOCK = 256
+# Facies lanes of the fused one-covariate, two-attribute path of the gridded kernel.
+_LANES = 8
 # Up to this many facies _finish_block handles a row's facies in registers (see there).
 _ROW_LOOP_MAX_FACIES = 7
 # Rows per chunk of the numpy path: bounds its temporaries to a few MB per facies.
@@ -118,6 +120,12 @@ _EXPONENT_ONE = 0x3FF0000000000000
 _SMALLEST_NORMAL_BITS = 0x0010000000000000
 _SMALLEST_NORMAL = 2.2250738585072014e-308
 _INFINITY_BITS = 0x7FF0000000000000
+_HUGE_DET = 2.0**1023  # from here on 2**-e of det = 2**e m is not a normal number
+_HUGE_DET_BITS = 0x7FE0000000000000
+# Quadratic start for m**-1/2 on [1, 2] (Chebyshev interpolant, relative error 3.6e-3).
+_RSQRT_C0 = 1.57368075
+_RSQRT_C1 = -0.72223657
+_RSQRT_C2 = 0.14496475
 _HALF_LOG_2PI = 0.91893853320467274178
 # kd = x + _ROUND_SHIFT (1.5 * 2**52) rounds x to an integer held in kd's low bits.
 _ROUND_SHIFT = 6755399441055744.0
@@ -767,9 +775,12 @@ def _mark_bad(good, m, start, mode, out, most, q_win, q_min, entropy, ktag):  # 
 
 
 def _finish_block(
-    lf, qf, ef, rows, scratch, m, start, mode, out, most, q_win, q_min, entropy, ktag
+    lf, qf, ef, rows, scratch, m, start, mode, out, most, q_win, q_min, entropy, ktag, zf, scaled
 ):  # pragma: no cover - compiled by numba
     """Normalise one block of joint log-densities and write the outputs.
+
+    With ``scaled`` (posterior only, no extras) a pair's density is exp(lf) * zf: lf then
+    leaves out a factor in (1/sqrt(2), 1] of the density (see the gridded kernel).
 
     lf, qf, ef: (k, B) block buffers, flat (facies j of block row i at j * _BLOCK + i),
     of the joint log-density, the squared Mahalanobis distance and the exponentials.
@@ -803,6 +814,7 @@ def _finish_block(
                 t = lf[j * _BLOCK + i] - mx
                 lf[j * _BLOCK + i] = t
                 e = _exp1(t)
+                e = e * zf[j * _BLOCK + i] if scaled else e
                 ef[j * _BLOCK + i] = e
                 total += e
             r = 1.0 / total
@@ -828,6 +840,7 @@ def _finish_block(
                 t = lf[j * _BLOCK + i] - mxr[i]
                 lf[j * _BLOCK + i] = t
                 e = _exp1(t)
+                e = e * zf[j * _BLOCK + i] if scaled else e
                 ef[j * _BLOCK + i] = e
                 tot[i] += e
         for i in range(_BLOCK):
@@ -950,7 +963,8 @@ def _stationary_kernel(
                 for i in range(m):
                     lf[o + i] += log_prior[np.uint64(start + i), j]
         _finish_block(
-            lf, qf, ef, rows, scratch, m, start, mode, out, most, q_win, q_min, entropy, ktag
+            lf, qf, ef, rows, scratch, m, start, mode, out, most, q_win, q_min, entropy, ktag,
+            ef, False,
         )
         if n_bad > 0:
             _count_bad(xf, dtag, start, m, good, counts, 0)
@@ -975,6 +989,7 @@ def _gridded_kernel(
     dtag,
     ktag,
     atag,
+    lanes,
 ):  # pragma: no cover - compiled by numba
     """Evaluation core for Gaussians interpolated on a covariate grid."""
     d = len(dtag)
@@ -1030,6 +1045,49 @@ def _gridded_kernel(
     for i in range(_BLOCK):
         for j in range(k):
             cr[i * k + j] = c0 + (lpf[j] if with_prior and not prior_rows else 0.0)
+    # One covariate, two attributes, at most _LANES facies (the common case): the fused
+    # path. Its tables hold each parameter of all facies side by side, padded to _LANES
+    # facies (padding lanes: zero mean, unit covariance): per cell c (between nodes c and
+    # c + 1) and parameter p, facies j at (c * 5 + p) * _LANES + j, the value at the
+    # cell's left node (tab_a) and its change to the right node (tab_d). A row then
+    # interpolates (one FMA per parameter) and evaluates all its facies with contiguous
+    # _LANES-wide loads and arithmetic, in one loop: no interleaved loads of a (row,
+    # facies, parameter) buffer and no second pass over it. Measured per 10^7 rows and
+    # 6 facies (11 nodes, out= reused): 0.41 s for the general path, 0.33 s fused.
+    fused = d == 2 and n_axes == 1 and k <= _LANES and node_values.shape[0] > 1
+    n_tab = node_values.shape[0] if fused else 0
+    n_cell = max(n_tab - 1, 0)
+    tab_a = np.zeros(n_cell * 5 * _LANES)
+    tab_d = np.zeros(n_cell * 5 * _LANES)
+    for c in range(n_cell):
+        for p in range(5):
+            for j in range(_LANES):
+                pad = 1.0 if p == 2 or p == 4 else 0.0
+                left = pf[np.uint64(c * n_cols + j * 5 + p)] if j < k else pad
+                right = pf[np.uint64((c + 1) * n_cols + j * 5 + p)] if j < k else pad
+                tab_a[(c * 5 + p) * _LANES + j] = left
+                tab_d[(c * 5 + p) * _LANES + j] = right - left
+    # Evenly spaced nodes (as scenarios usually declare them): the cell is the integer
+    # part of (value - first node) / spacing, not a count over every interior node.
+    even = n_tab > 1
+    if even:
+        spacing = (node_values[n_tab - 1] - node_values[0]) / (n_tab - 1)
+        for s in range(n_tab):
+            off = node_values[s] - (node_values[0] + s * spacing)
+            even = even and abs(off) <= 1e-12 * (node_values[n_tab - 1] - node_values[0])
+    det8 = np.empty(_BLOCK * _LANES)
+    num8 = np.empty(_BLOCK * _LANES)
+    crf = np.empty(k * _BLOCK)
+    zf = np.ones(k * _BLOCK)
+    scaled = fused and mode == _POSTERIOR and most.shape[0] == 0
+    for i in range(_BLOCK):
+        for j in range(k):
+            crf[j * _BLOCK + i] = cr[i * k + j]
+    tt = np.empty(_BLOCK)
+    # The lane loop's trip count comes in as an argument (lanes = _LANES): a bound LLVM
+    # knows (even min(_LANES, n)) leaves the loop scalar, 0.18 against 0.08 s per 10^7
+    # rows measured in isolation.
+    nl = lanes
     for start in range(0, n, _BLOCK):
         m = min(_BLOCK, n - start)
         n_bad_x = _load_block(xf, dtag, start, m, xs, good)
@@ -1046,7 +1104,64 @@ def _gridded_kernel(
         for i in range(_BLOCK):
             good[i] += good_cov[i]
             clamp[i] = 0.0
-        if n_axes == 1:
+        if fused:
+            # Cell and fraction as in the general branch below (branch- and gather-free,
+            # so the loops vectorise), then each row with all its facies side by side.
+            nn = node_offsets[1]
+            first = node_values[0]
+            last = node_values[nn - 1]
+            if even:
+                last_cell = np.float64(nn - 2)
+                for i in range(_BLOCK):
+                    cv = cs[0, i]
+                    pos = (cv - first) / spacing
+                    pos = 0.0 if pos < 0.0 else pos
+                    pos = last_cell + 1.0 if pos > last_cell + 1.0 else pos
+                    c = np.floor(pos)
+                    c = last_cell if c > last_cell else c
+                    cell[0, i] = np.int64(c)
+                    clamp[i] = (cv < first) | (cv > last)
+                    tt[i] = pos - c
+            else:
+                width0 = node_values[1] - first
+                for i in range(_BLOCK):
+                    cell[0, i] = 0
+                    edge[i] = first
+                    width[i] = width0
+                for s in range(1, nn - 1):
+                    node = node_values[s]
+                    step = node - node_values[s - 1]
+                    grow = (node_values[s + 1] - node) - step
+                    for i in range(_BLOCK):
+                        passed = cs[0, i] >= node
+                        cell[0, i] += passed
+                        edge[i] += step if passed else 0.0
+                        width[i] += grow if passed else 0.0
+                for i in range(_BLOCK):
+                    t = (cs[0, i] - edge[i]) / width[i]
+                    below = t < 0.0
+                    above = t > 1.0
+                    clamp[i] = below | above
+                    t = 0.0 if below else t
+                    t = 1.0 if above else t
+                    tt[i] = t
+            # q numerator and determinant of every facies of each row (see above).
+            for i in range(_BLOCK):
+                t = tt[i]
+                x0 = xs[0, i]
+                x1 = xs[1, i]
+                r0 = cell[0, i] * (5 * _LANES)
+                o = i * _LANES
+                for j in range(nl):
+                    dx = x0 - (tab_a[np.uint64(r0 + j)] + t * tab_d[np.uint64(r0 + j)])
+                    dy = x1 - (tab_a[np.uint64(r0 + _LANES + j)] + t * tab_d[np.uint64(r0 + _LANES + j)])
+                    s00 = tab_a[np.uint64(r0 + 2 * _LANES + j)] + t * tab_d[np.uint64(r0 + 2 * _LANES + j)]
+                    s10 = tab_a[np.uint64(r0 + 3 * _LANES + j)] + t * tab_d[np.uint64(r0 + 3 * _LANES + j)]
+                    s11 = tab_a[np.uint64(r0 + 4 * _LANES + j)] + t * tab_d[np.uint64(r0 + 4 * _LANES + j)]
+                    det = s00 * s11 - s10 * s10
+                    det8[o + j] = det if s00 > 0.0 else -1.0  # -1: not positive definite
+                    num8[o + j] = s11 * dx * dx - 2.0 * s10 * dx * dy + s00 * dy * dy
+        elif n_axes == 1:
             # One covariate: the cell index counts the interior nodes passed (one
             # vectorised pass per node); then per row the fraction t between the cell's
             # end nodes and (1 - t) * node row + t * next node row, all facies at once
@@ -1146,6 +1261,86 @@ def _gridded_kernel(
                     for p in range(n_cols):
                         vals[o + p] += w * pf[np.uint64(rc + p)]
         n_fix = 0
+        if fused:
+            # q and the log determinant, all lanes at once (padding lanes: det = 1),
+            # straight into the (k, B) layout of _finish_block.
+            for i in range(_BLOCK):
+                for j in range(k):
+                    lf[j * _BLOCK + i] = det8[i * _LANES + j]
+                    qf[j * _BLOCK + i] = num8[i * _LANES + j]
+            if scaled:
+                # The posterior alone needs no log determinant: with det = 2**e m, m in
+                # [1, 2), the density is exp(c - q/2 - e ln(2)/2) * m**-1/2, so lf keeps
+                # the exact power of two and _finish_block multiplies by zf = m**-1/2
+                # (in (0.707, 1]: the shift by the row maximum still keeps the largest
+                # term near 1, as in log space). m**-1/2 by a quadratic start (relative
+                # error 3.6e-3) and three Newton steps (4.7e-19), and 1/det =
+                # 2**-e zf**2: no division and no log per pair (0.08 -> 0.03 s per 10^7
+                # rows and 6 facies, measured). det at or above 2**1023 or not normal
+                # takes the exact route below.
+                for u in range(k * _BLOCK):
+                    det = lf[u]
+                    bits = np.float64(det).view(np.int64)
+                    n_fix += (bits < _SMALLEST_NORMAL_BITS) | (bits >= _HUGE_DET_BITS)
+                    mant = np.int64((bits & _MANTISSA_BITS) | _EXPONENT_ONE).view(np.float64)
+                    y = _RSQRT_C0 + mant * (_RSQRT_C1 + mant * _RSQRT_C2)
+                    half = 0.5 * mant
+                    y = y * (1.5 - half * y * y)
+                    y = y * (1.5 - half * y * y)
+                    y = y * (1.5 - half * y * y)
+                    biased = bits >> 52
+                    ex = np.float64(biased - 1023)
+                    inv_det = y * y * np.int64((2046 - biased) << 52).view(np.float64)
+                    q = qf[u] * inv_det
+                    qf[u] = q
+                    zf[u] = y
+                    lf[u] = crf[u] - 0.5 * (ex * _LN2_HI + ex * _LN2_LO) - 0.5 * q
+            else:
+                for u in range(k * _BLOCK):
+                    det = lf[u]
+                    bits = np.float64(det).view(np.int64)
+                    n_fix += (bits < _SMALLEST_NORMAL_BITS) | (bits >= _INFINITY_BITS)
+                    q = qf[u] / det
+                    qf[u] = q
+                    lf[u] = crf[u] - 0.5 * _log1(det) - 0.5 * q
+            if n_fix > 0:
+                # Over- or underflowed determinants, or lost positive definiteness by
+                # rounding: as below, from the row's interpolated parameters.
+                for i in range(_BLOCK):
+                    t = tt[i]
+                    for j in range(k):
+                        r0 = cell[0, i] * (5 * _LANES) + j
+                        s00 = tab_a[r0 + 2 * _LANES] + t * tab_d[r0 + 2 * _LANES]
+                        s10 = tab_a[r0 + 3 * _LANES] + t * tab_d[r0 + 3 * _LANES]
+                        s11 = tab_a[r0 + 4 * _LANES] + t * tab_d[r0 + 4 * _LANES]
+                        dd = s00 * s11 - s10 * s10
+                        if dd >= _SMALLEST_NORMAL and dd < _HUGE_DET and s00 > 0.0:
+                            continue
+                        zf[j * _BLOCK + i] = 1.0  # lf exact here
+                        acc = np.log(s00) + np.log(s11 - s10 * s10 / s00)
+                        dx = xs[0, i] - (tab_a[r0] + t * tab_d[r0])
+                        dy = xs[1, i] - (tab_a[r0 + _LANES] + t * tab_d[r0 + _LANES])
+                        nq = s11 * dx * dx - 2.0 * s10 * dx * dy + s00 * dy * dy
+                        q = nq / dd
+                        qf[j * _BLOCK + i] = q
+                        lf[j * _BLOCK + i] = crf[j * _BLOCK + i] - 0.5 * acc - 0.5 * q
+                        if (acc - acc) != 0.0 and good[i] == 0.0:
+                            counts[5] += 1
+                            good[i] = np.nan
+                            n_bad_x += 1
+            if with_prior and prior_rows:
+                for j in range(k):
+                    for i in range(m):
+                        lf[j * _BLOCK + i] += lpf[np.uint64((start + i) * k + j)]
+            for i in range(m):
+                counts[4] += (clamp[i] > 0.0) & (good[i] == 0.0)
+            _finish_block(
+                lf, qf, ef, rows, scratch, m, start, mode, out, most, q_win, q_min, entropy, ktag,
+                zf, scaled,
+            )
+            if n_bad_x + n_bad_c > 0:
+                _mark_bad(good, m, start, mode, out, most, q_win, q_min, entropy, ktag)
+            continue
         if d == 2:
             # Closed form for two attributes, over all (row, facies) pairs at once: a
             # pair's five parameters are consecutive in vals, so the loop vectorises
@@ -1254,7 +1449,8 @@ def _gridded_kernel(
                 lf[j * _BLOCK + i] = lp[i * k + j]
                 qf[j * _BLOCK + i] = qp[i * k + j]
         _finish_block(
-            lf, qf, ef, rows, scratch, m, start, mode, out, most, q_win, q_min, entropy, ktag
+            lf, qf, ef, rows, scratch, m, start, mode, out, most, q_win, q_min, entropy, ktag,
+            ef, False,
         )
         if n_bad_x + n_bad_c > 0:
             _mark_bad(good, m, start, mode, out, most, q_win, q_min, entropy, ktag)
@@ -1393,6 +1589,7 @@ def _nb_evaluate(
             dtag,
             ktag,
             (0,) * cov.shape[1],
+            _LANES,
         )
     if not extras:
         return _Raw(out if want_values else None, None, None, None, None, counts)
