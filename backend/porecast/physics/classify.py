@@ -52,12 +52,14 @@ compile-time constants the block loops vectorise (AVX2/AVX-512). numba's own
 a first kernel at ~7e6 samples/s, so the kernels carry their own vectorisable exp
 (Cody & Waite 1980 range reduction, degree-11 minimax polynomial, relative error
 below 2e-16) and log (atanh series), checked against numpy in the tests.
-Per 10^7 rows on one Emerald Rapids core (LLVM's default 256-bit vectors, noisy
-shared machine): :func:`posterior` 0.24 s, 0.18 s when it writes into a reused array
-(``out=``; the difference is the page faults of a fresh 480 MB result); the
-one-covariate non-stationary posterior 0.65 s (interpolation, closed-form q and a log
-determinant for each of the 6e7 row-facies pairs); :func:`classify` 0.43 s. The
-notes above the kernels say what decided these figures.
+Per 10^7 rows and 6 facies on one Xeon core with AVX-512 (LLVM's default 256-bit
+vectors, noisy shared machine, benchmarks/classify.py): :func:`posterior` 0.17-0.18 s,
+0.12-0.13 s when it writes into a reused array (``out=``; the difference is the page
+faults of a fresh 480 MB result); the one-covariate non-stationary posterior
+0.33-0.36 s (interpolation and closed-form q for each of the 6e7 row-facies pairs, see
+the fused path of the gridded kernel); :func:`classify` 0.31 s, non-stationary 0.48-0.57
+s (a log determinant per pair for the entropy). The notes beside the kernels say what
+decided these figures.
 """
 
 from __future__ import annotations
@@ -1366,8 +1368,10 @@ def _gridded_kernel(
                 for j in range(k):
                     for i in range(m):
                         lf[j * _BLOCK + i] += lpf[np.uint64((start + i) * k + j)]
+            n_clamped = 0  # summed here, not in counts: a store per row keeps the loop scalar
             for i in range(m):
-                counts[4] += (clamp[i] > 0.0) & (good[i] == 0.0)
+                n_clamped += (clamp[i] > 0.0) & (good[i] == 0.0)
+            counts[4] += n_clamped
             _finish_block(
                 lf, qf, ef, rows, scratch, m, start, mode, out, most, q_win, q_min, entropy, ktag,
                 zf, scaled,
@@ -1473,8 +1477,10 @@ def _gridded_kernel(
         if with_prior and prior_rows:
             for u in range(m * k):
                 lp[u] += lpf[np.uint64(start * k + u)]
+        n_clamped = 0
         for i in range(m):
-            counts[4] += (clamp[i] > 0.0) & (good[i] == 0.0)
+            n_clamped += (clamp[i] > 0.0) & (good[i] == 0.0)
+        counts[4] += n_clamped
         # To the (k, B) layout of _finish_block (interleaved loads; finishing in the
         # (B, k) layout instead ran as gathers and scatters for k = 7: 0.69 against
         # 0.54 s per 10^7 rows and 6 facies).
