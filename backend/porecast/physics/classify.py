@@ -848,8 +848,7 @@ def _finish_block(
             for j in range(k):
                 t = lf[j * _BLOCK + i] - mx
                 lf[j * _BLOCK + i] = t
-                e = _exp1(t)
-                e = e * zf[j * _BLOCK + i] if scaled else e
+                e = _exp1(t)  # never scaled here: the branch above takes those blocks
                 ef[j * _BLOCK + i] = e
                 total += e
             r = 1.0 / total
